@@ -119,10 +119,9 @@ std::optional<UnitSymbol> find_unit_symbol(std::string_view text) {
 }
 
 bool is_iec_code(std::string_view text) {
-  // A code for zero (R0, k00) marks no part value, so such names (R0 is a
-  // usual reference resistance) stay names.
-  auto code = decode_iec("", text);
-  return code.has_value() && code->value != 0;
+  // NETLIST.md section 2: where a value is expected, a token of this shape
+  // is always a number, zero-valued codes (R0, k00) included.
+  return decode_iec("", text).has_value();
 }
 
 std::optional<Literal> decode_number(std::string_view text, LiteralError& error) {

@@ -1788,8 +1788,11 @@ void Loader::elaborate_element(const Stmt& stmt, const ast::Command& cmd, Contex
   auto attr_value = [&](const char* key) -> std::optional<Quantity> {
     auto it = attrs.find(key);
     if (it == attrs.end()) return std::nullopt;
-    const AttrSpec& s = *std::find_if(allowed.begin(), allowed.end(),
-                                      [&](const AttrSpec& a) { return std::string(a.key) == key; });
+    auto spec = std::find_if(allowed.begin(), allowed.end(),
+                             [&](const AttrSpec& a) { return std::string(a.key) == key; });
+    // An attribute this kind does not take was already reported above.
+    if (spec == allowed.end()) return std::nullopt;
+    const AttrSpec& s = *spec;
     auto q = eval_checked(it->second->value, ctx.scope, expect_dim(s.dim, s.what),
                           owner + " " + key);
     if (!q) ok = false;

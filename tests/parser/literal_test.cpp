@@ -102,12 +102,12 @@ TEST(Literal, MegIsAnErrorWithHint) {
   EXPECT_NE(e.message.find("mega is 'M'"), std::string::npos);
   EXPECT_EQ(e.hint, "write 1M");
   auto r = testing::load("resistor R1 a gnd 1meg\n");
-  testing::expect_error(r, 1, 18, "'meg' is not a prefix", "write 1M");
+  testing::expect_error(r, 1, 19, "'meg' is not a prefix", "write 1M");
 }
 
 TEST(Literal, UnknownSuffix) {
   auto r = testing::load("resistor R1 a gnd 10x\n");
-  testing::expect_error(r, 1, 18, "unknown prefix or unit 'x'");
+  testing::expect_error(r, 1, 19, "unknown prefix or unit 'x'");
   LiteralError e;
   EXPECT_FALSE(decode_number("1E", e));
   EXPECT_FALSE(decode_number("1mm", e));

@@ -55,7 +55,7 @@ TEST(WaveformParse, PulseErrors) {
   auto fit = testing::load("voltage V1 a gnd pulse(period=1u, width=1u, rise=1n)\nresistor R a gnd 1\n");
   expect_error(fit, 1, 18, "does not fit in the period");
   auto count = testing::load("voltage V1 a gnd pulse(period=1u, width=1n, count=1.5)\nresistor R a gnd 1\n");
-  expect_error(count, 1, 50, "must be a whole number >= 1");
+  expect_error(count, 1, 51, "must be a whole number >= 1");
 }
 
 TEST(WaveformParse, Sine) {
@@ -86,7 +86,7 @@ TEST(WaveformParse, Points) {
   EXPECT_DOUBLE_EQ(w->value(2e-3), -5);
   EXPECT_DOUBLE_EQ(w->value(1), -5);  // held after the last pair
   auto order = testing::load("voltage V1 a gnd points(0 0, 2m 1, 1m 2)\nresistor R a gnd 1\n");
-  expect_error(order, 1, 37, "times must increase strictly");
+  expect_error(order, 1, 36, "times must increase strictly");
   auto pairs = testing::load("voltage V1 a gnd points(0, 1)\nresistor R a gnd 1\n");
   expect_error(pairs, 1, 25, "takes pairs 'time value'");
   auto unit = testing::load("voltage V1 a gnd points(0 0, 1V 1)\nresistor R a gnd 1\n");
