@@ -1,0 +1,49 @@
+// ringdown's entry point: only wiring. Each command lives in its own file
+// (an options struct, setup_* binding its flags, run_* doing the work;
+// STYLE.md "CLI"); main registers them, parses, and dispatches.
+// Commands not yet implemented (check, modes, freq, compare) are not registered.
+#include <CLI/CLI.hpp>
+#include <exception>
+#include <new>
+
+#include "cli/arguments.hpp"
+#include "cli/atomic_file.hpp"
+#include "cli/console.hpp"
+#include "cli/demo.hpp"
+#include "cli/exit_codes.hpp"
+#include "cli/fmt.hpp"
+#include "cli/inspect.hpp"
+#include "cli/run.hpp"
+
+int main(int argc, char** argv) {
+  using namespace ringdown::cli;
+  install_cleanup_handlers();
+
+  CLI::App app{"ringdown: exact transient simulation of linear RLC circuits", "ringdown"};
+  configure_app(app);
+  RunOptions run;
+  InspectOptions inspect;
+  FmtOptions fmt;
+  DemoOptions demo;
+  CLI::App* run_command = setup_run(app, run);
+  CLI::App* inspect_command = setup_inspect(app, inspect);
+  CLI::App* fmt_command = setup_fmt(app, fmt);
+  CLI::App* demo_command = demo_available() ? setup_demo(app, demo) : nullptr;
+
+  if (const int code = parse_arguments(app, argc, argv); code >= 0) return code;
+  try {
+    if (*run_command) return run_run(run);
+    if (*inspect_command) return run_inspect(inspect);
+    if (*fmt_command) return run_fmt(fmt);
+    if (demo_command && *demo_command) return run_demo(demo);
+  } catch (const std::bad_alloc&) {
+    print_error("out of memory", "a smaller --until or a larger --every needs less");
+    return kExitNumerical;
+  } catch (const std::exception& e) {
+    // Not expected: every stage reports problems as diagnostics. Say so
+    // plainly instead of letting the runtime abort with a core dump.
+    print_error(std::string("internal error: ") + e.what(), "please report this with the input file");
+    return kExitNumerical;
+  }
+  return kExitBadInput;
+}
