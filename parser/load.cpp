@@ -1167,7 +1167,10 @@ bool Loader::check_unit(const Quantity& q, const Expected& expected, const std::
   std::string hint;
   if (const ast::Name* n = as_name(op)) {
     if (ParamDef* p = scope ? scope->find(n->text) : nullptr) {
-      if (p->expr && p->name_token) {
+      if (p->expr && p->overridden) {
+        hint = "parameter " + p->name + " = " + text_of(*p->expr) +
+               " (set on the command line) is in " + unit_text(q.unit);
+      } else if (p->expr && p->name_token) {
         hint = "parameter " + p->name + " = " + text_of(*p->expr) + " (line " +
                std::to_string(where(*p->name_token).line) + ") is in " + unit_text(q.unit);
       } else {
@@ -2668,6 +2671,14 @@ std::optional<SignalExpr> Loader::signal_name(const ast::Name& n, Unit& unit) {
     e.constant = q->value;
     unit = q->unit;
     return e;
+  }
+  // An element whose own line failed was already reported there: a second
+  // error for every reference to it would only be noise.
+  if (dot != std::string::npos && errors_ > 0) {
+    const std::string owner = n.text.substr(0, dot);
+    bool coupling = false;
+    for (const Coupling& c : circuit_.couplings) coupling = coupling || c.name == owner;
+    if (!coupling && names_.count(owner) > 0) return std::nullopt;
   }
   std::string near = suggest_signal(n.text);
   error(n, "unknown node or element '" + n.text + "'",
