@@ -1,0 +1,198 @@
+// Dense propagators, the Al-Mohy & Higham action, fixed-size kernels
+// (propagation.hpp explains the roles).
+#include "solver/propagation.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+#include <unsupported/Eigen/MatrixFunctions>
+
+#if __has_include("solver/stiff_exponential.hpp")
+#include "solver/stiff_exponential.hpp"
+#define RINGDOWN_HAVE_STIFF_PROPAGATOR 1
+#endif
+
+namespace ringdown::solver {
+
+namespace {
+
+// Balancing sweeps stop when no row/column pair shrinks by more than this
+// factor (the 0.95 of Parlett & Reinsch's ALGOL procedure, as kept in
+// LAPACK xGEBAL; from memory), or after this many sweeps.
+constexpr double kBalanceGain = 0.95;
+constexpr int kBalanceSweeps = 64;
+
+// Unit roundoff of IEEE double, the target of the Taylor truncation.
+constexpr double kUnitRoundoff = 0x1p-53;
+// Highest Taylor degree considered (m_max = 55 in Al-Mohy & Higham 2011,
+// section 3).
+constexpr int kMaxTaylorDegree = 55;
+// theta_m, the largest ||X|| for which the degree-m Taylor remainder stays
+// below the unit roundoff, is taken from the forward bound
+// ||X||^{m+1}/(m+1)! <= u (Al-Mohy & Higham tabulate a sharper backward
+// bound, which is close to this one for m >= 10). This factor keeps the
+// bound on the safe side (0.8^{m+1} extra margin); the early-termination
+// test of their Algorithm 3.2 then stops sooner when the series converges.
+constexpr double kThetaSafety = 0.8;
+
+double theta(int m) {
+  return kThetaSafety *
+         std::exp((std::lgamma(m + 2.0) + std::log(kUnitRoundoff)) / (m + 1.0));
+}
+
+// Choice of (m, s) minimising m*s with s = ceil(norm / theta_m).
+void taylor_parameters(double norm, int& m_best, long& s_best) {
+  if (!(norm > 0)) {
+    m_best = 0;
+    s_best = 1;
+    return;
+  }
+  double best = std::numeric_limits<double>::infinity();
+  m_best = 1;
+  s_best = 1;
+  for (int m = 1; m <= kMaxTaylorDegree; ++m) {
+    const double s = std::max(1.0, std::ceil(norm / theta(m)));
+    if (m * s < best) {
+      best = m * s;
+      m_best = m;
+      s_best = static_cast<long>(std::min(s, 1e15));
+    }
+  }
+}
+
+template <int N>
+void multiply_fixed(const Eigen::MatrixXd& P, const Eigen::VectorXd& x, Eigen::VectorXd& y) {
+  Eigen::Map<const Eigen::Matrix<double, N, N>> Pm(P.data());
+  Eigen::Map<const Eigen::Matrix<double, N, 1>> xm(x.data());
+  Eigen::Map<Eigen::Matrix<double, N, 1>> ym(y.data());
+  ym.noalias() = Pm * xm;
+}
+
+}  // namespace
+
+void balance(Eigen::MatrixXd& M, Eigen::VectorXd& d) {
+  const Eigen::Index n = M.rows();
+  d.setOnes(n);
+  for (int sweep = 0; sweep < kBalanceSweeps; ++sweep) {
+    bool done = true;
+    for (Eigen::Index i = 0; i < n; ++i) {
+      const double c = M.col(i).cwiseAbs().sum() - std::abs(M(i, i));
+      const double r = M.row(i).cwiseAbs().sum() - std::abs(M(i, i));
+      if (c == 0 || r == 0) continue;
+      double f = 1, cc = c;
+      double g = r / 2;
+      while (cc < g) {
+        f *= 2;
+        cc *= 4;
+      }
+      g = r * 2;
+      while (cc > g) {
+        f /= 2;
+        cc /= 4;
+      }
+      if ((cc + r) / f < kBalanceGain * (c + r)) {
+        done = false;
+        d(i) *= f;
+        M.row(i) /= f;
+        M.col(i) *= f;
+      }
+    }
+    if (done) break;
+  }
+}
+
+AugmentedSystem make_augmented(const Eigen::MatrixXd& A, const Eigen::MatrixXd& Bm,
+                               const Eigen::MatrixXd& C11, const Eigen::MatrixXd& Gs,
+                               const Eigen::MatrixXd& Bs, const Eigen::MatrixXd& S,
+                               const Eigen::MatrixXd& H) {
+  AugmentedSystem sys;
+  const Eigen::Index r = A.rows();
+  const Eigen::Index q = S.rows();
+  const Eigen::Index N = r + q;
+  sys.states = static_cast<int>(r);
+  sys.M = Eigen::MatrixXd::Zero(N, N);
+  sys.M.topLeftCorner(r, r) = A;
+  sys.M.topRightCorner(r, q).noalias() = Bm * H;
+  sys.M.bottomRightCorner(q, q) = S;
+  sys.E = Eigen::MatrixXd::Zero(N, N);
+  sys.E.topLeftCorner(r, r) = C11;
+  sys.E.bottomRightCorner(q, q).setIdentity();
+  sys.F = Eigen::MatrixXd::Zero(N, N);
+  sys.F.topLeftCorner(r, r) = Gs;
+  sys.F.topRightCorner(r, q).noalias() = -Bs * H;
+  sys.F.bottomRightCorner(q, q) = -S;
+  sys.balanced = sys.M;
+  balance(sys.balanced, sys.scale);
+  sys.shift = N > 0 ? sys.M.trace() / static_cast<double>(N) : 0.0;
+  Eigen::MatrixXd shifted = sys.balanced;
+  shifted.diagonal().array() -= sys.shift;
+  sys.shifted_norm1 = N > 0 ? shifted.cwiseAbs().colwise().sum().maxCoeff() : 0.0;
+  return sys;
+}
+
+Eigen::MatrixXd dense_propagator(const AugmentedSystem& sys, double h) {
+#ifdef RINGDOWN_HAVE_STIFF_PROPAGATOR
+  ExponentialReport report;
+  return stiff_propagator(sys.E, sys.F, h, &report);
+#else
+  // expm(M h) = D expm(D^-1 M D h) D^-1.
+  const Eigen::MatrixXd Pb = (sys.balanced * h).exp();
+  const Eigen::VectorXd inv = sys.scale.cwiseInverse();
+  return sys.scale.asDiagonal() * Pb * inv.asDiagonal();
+#endif
+}
+
+long expm_action_cost(const AugmentedSystem& sys, double h) {
+  int m;
+  long s;
+  taylor_parameters(sys.shifted_norm1 * std::abs(h), m, s);
+  return m * s;
+}
+
+// Al-Mohy & Higham 2011, Algorithm 3.2 (expmv), on the balanced matrix with
+// the shift mu = trace/n; departures: theta_m from the forward bound above
+// instead of their table, no norm estimation of powers (p = 1 only).
+void expm_action(const AugmentedSystem& sys, double h, const Eigen::VectorXd& v,
+                 Eigen::VectorXd& y, Eigen::VectorXd& b, Eigen::VectorXd& tmp) {
+  const Eigen::Index N = sys.M.rows();
+  int m;
+  long s;
+  taylor_parameters(sys.shifted_norm1 * std::abs(h), m, s);
+  y.resize(N);
+  b.resize(N);
+  tmp.resize(N);
+  // Work in balanced coordinates: expm(Mh) v = D expm(Mb h) D^-1 v.
+  y = v.cwiseQuotient(sys.scale);
+  const double eta = std::exp(sys.shift * h / static_cast<double>(s));
+  for (long i = 0; i < s; ++i) {
+    b = y;
+    double c1 = b.lpNorm<Eigen::Infinity>();
+    for (int j = 1; j <= m; ++j) {
+      tmp.noalias() = sys.balanced * b;
+      tmp -= sys.shift * b;
+      b = tmp * (h / (static_cast<double>(s) * j));
+      const double c2 = b.lpNorm<Eigen::Infinity>();
+      y += b;
+      if (c1 + c2 <= kUnitRoundoff * y.lpNorm<Eigen::Infinity>()) break;
+      c1 = c2;
+    }
+    y *= eta;
+  }
+  y = y.cwiseProduct(sys.scale);
+}
+
+void multiply(const Eigen::MatrixXd& P, const Eigen::VectorXd& x, Eigen::VectorXd& y) {
+  switch (P.rows()) {
+    case 1: multiply_fixed<1>(P, x, y); return;
+    case 2: multiply_fixed<2>(P, x, y); return;
+    case 3: multiply_fixed<3>(P, x, y); return;
+    case 4: multiply_fixed<4>(P, x, y); return;
+    case 5: multiply_fixed<5>(P, x, y); return;
+    case 6: multiply_fixed<6>(P, x, y); return;
+    case 7: multiply_fixed<7>(P, x, y); return;
+    case 8: multiply_fixed<8>(P, x, y); return;
+    default: y.noalias() = P * x; return;
+  }
+}
+
+}  // namespace ringdown::solver

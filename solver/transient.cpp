@@ -1,0 +1,1041 @@
+// run_transient: the exact engine's driver (ARCHITECTURE.md, "Exact
+// propagation"; transient.hpp is the public contract).
+//
+// Circuit -> mna::Network -> one reduction per switch configuration met ->
+// initial state (DC with holds, or zero) -> the time axis cut at every
+// waveform corner and switch instant -> on each interval the augmented
+// system [x_s; w] stepped by cached dense propagators (or, for step lengths
+// met once, the action of the exponential on the vector) -> at t = k*every
+// the recorded signals evaluated from x, x' and u and streamed to the sink.
+//
+// Not here: `formula` sources (rejected with a diagnostic until the fitting
+// engine lands), figures, writers, the sparse engine.
+#include "solver/transient.hpp"
+
+#include <Eigen/Eigenvalues>
+#include <algorithm>
+#include <chrono>
+#include <cmath>
+#include <cstring>
+#include <limits>
+#include <map>
+#include <numbers>
+#include <optional>
+#include <stdexcept>
+#include <string>
+#include <unordered_map>
+
+#include "mna/descriptor.hpp"
+#include "parser/units.hpp"
+#include "solver/initial_state.hpp"
+#include "solver/propagation.hpp"
+#include "solver/source_model.hpp"
+#include "solver/state_space.hpp"
+
+namespace ringdown::solver {
+
+namespace {
+
+// NETLIST.md section 7: N = round(T/H) when T/H is within 1e-9 (relative)
+// of a whole number, else floor(T/H).
+constexpr double kWholeSlack = 1e-9;
+// Instants closer than this many units of roundoff of the run's end are the
+// same instant: corners computed as start + k*period and samples computed as
+// k*every differ by a few ulps when they mean the same time (common practice,
+// no source). Also the resolution of the step-length cache key.
+constexpr double kInstantUlps = 16.0;
+// A step length used this many times gets a dense propagator even when the
+// action of the exponential would be cheaper once (a dense expm costs about
+// as much as ten actions on a vector; Al-Mohy & Higham 2011, sec. 6, and our
+// measurements).
+constexpr int kDenseAfterUses = 3;
+// Dense propagator instead of the action when the action would take more
+// than this many matrix-vector products per state (stiff steps: the Taylor
+// action needs ~||M h|| products, a dense expm ~ (10 + log2 ||M h||) n^3).
+constexpr double kActionLimitPerState = 10.0;
+// Cache of dense propagators: cleared when it would exceed this many bytes
+// (memory stays O(n^2) with a constant that fits a workstation).
+constexpr double kCacheBytes = 512.0 * 1024 * 1024;
+// A mode counts as growing when its rate times the run's length exceeds
+// this (grows by more than 0.1 % over the run) and it is not a rounding
+// shadow of a lossless mode (rate below 1e-9 of its modulus).
+constexpr double kGrowthOverRun = 1e-3;
+constexpr double kGrowthRelative = 1e-9;
+// Progress callbacks per run.
+constexpr long kProgressCalls = 100;
+
+Diagnostic diag(Severity severity, const SourcePosition& where, std::string message,
+                std::string hint = {}) {
+  Diagnostic d;
+  d.severity = severity;
+  d.where = where;
+  d.message = std::move(message);
+  d.hint = std::move(hint);
+  return d;
+}
+
+std::string fmt_num(double v, const char* unit) { return format_si(v, unit); }
+
+// --- Signals compiled to a postfix program over base linear maps ----------
+
+enum class BaseKind { Node, PartVoltage, PartCurrent, CapVoltage, IndCurrent };
+struct BaseRef {
+  BaseKind kind;
+  int index;
+  bool operator<(const BaseRef& o) const {
+    return kind != o.kind ? kind < o.kind : index < o.index;
+  }
+};
+
+struct Instr {
+  enum Kind { Load, Const, Add, Sub, Mul, Div, Neg, Pow } kind = Const;
+  int base = -1;
+  double value = 0;
+};
+
+struct Compiler {
+  std::map<BaseRef, int> index;
+  std::vector<BaseRef> bases;
+  int base_of(BaseRef ref) {
+    auto it = index.find(ref);
+    if (it != index.end()) return it->second;
+    const int i = static_cast<int>(bases.size());
+    bases.push_back(ref);
+    index[ref] = i;
+    return i;
+  }
+  bool compile(const SignalExpr& e, std::vector<Instr>& out, std::string& error) {
+    using Op = SignalExpr::Op;
+    auto load = [&](BaseKind k, int i) { out.push_back({Instr::Load, base_of({k, i}), 0}); };
+    switch (e.op) {
+      case Op::NodeVoltage: load(BaseKind::Node, e.index); return true;
+      case Op::PartQuantity:
+        switch (e.quantity) {
+          case Quantity::Voltage: load(BaseKind::PartVoltage, e.index); return true;
+          case Quantity::Current: load(BaseKind::PartCurrent, e.index); return true;
+          case Quantity::Power:
+            load(BaseKind::PartVoltage, e.index);
+            load(BaseKind::PartCurrent, e.index);
+            out.push_back({Instr::Mul, -1, 0});
+            return true;
+          case Quantity::CapacitanceVoltage: load(BaseKind::CapVoltage, e.index); return true;
+          case Quantity::InductanceCurrent: load(BaseKind::IndCurrent, e.index); return true;
+        }
+        return false;
+      case Op::Constant: out.push_back({Instr::Const, -1, e.constant}); return true;
+      case Op::Neg:
+        if (e.args.size() != 1 || !compile(e.args[0], out, error)) return false;
+        out.push_back({Instr::Neg, -1, 0});
+        return true;
+      case Op::Add: case Op::Sub: case Op::Mul: case Op::Div: case Op::Pow: {
+        if (e.args.size() != 2) {
+          error = "malformed signal expression";
+          return false;
+        }
+        if (!compile(e.args[0], out, error) || !compile(e.args[1], out, error)) return false;
+        const Instr::Kind k = e.op == Op::Add   ? Instr::Add
+                              : e.op == Op::Sub ? Instr::Sub
+                              : e.op == Op::Mul ? Instr::Mul
+                              : e.op == Op::Div ? Instr::Div
+                                                : Instr::Pow;
+        out.push_back({k, -1, 0});
+        return true;
+      }
+    }
+    return false;
+  }
+};
+
+double run_program(const std::vector<Instr>& code, const double* base, double* stack) {
+  int top = 0;
+  for (const Instr& in : code) {
+    switch (in.kind) {
+      case Instr::Load: stack[top++] = base[in.base]; break;
+      case Instr::Const: stack[top++] = in.value; break;
+      case Instr::Neg: stack[top - 1] = -stack[top - 1]; break;
+      case Instr::Add: --top; stack[top - 1] += stack[top]; break;
+      case Instr::Sub: --top; stack[top - 1] -= stack[top]; break;
+      case Instr::Mul: --top; stack[top - 1] *= stack[top]; break;
+      case Instr::Div: --top; stack[top - 1] /= stack[top]; break;
+      case Instr::Pow: --top; stack[top - 1] = std::pow(stack[top - 1], stack[top]); break;
+    }
+  }
+  return top > 0 ? stack[top - 1] : 0.0;
+}
+
+// --- Engine state ------------------------------------------------------------
+
+struct Configuration {
+  mna::SwitchState closed;
+  mna::Descriptor descriptor;
+  StateSpace ss;
+  double condition = 0;
+  Eigen::MatrixXd Px, Pu, Pdu;  // base signals = Px x_s + Pu u + Pdu u'
+};
+
+struct PropagatorKey {
+  int config, structure;
+  long long length;
+  bool operator==(const PropagatorKey& o) const {
+    return config == o.config && structure == o.structure && length == o.length;
+  }
+};
+struct PropagatorKeyHash {
+  std::size_t operator()(const PropagatorKey& k) const {
+    std::size_t h = std::hash<long long>()(k.length);
+    h ^= std::hash<int>()(k.config) + 0x9e3779b97f4a7c15ULL + (h << 6) + (h >> 2);
+    h ^= std::hash<int>()(k.structure) + 0x9e3779b97f4a7c15ULL + (h << 6) + (h >> 2);
+    return h;
+  }
+};
+struct PropagatorEntry {
+  Eigen::MatrixXd P;
+  int uses = 0;
+};
+
+struct Segment {
+  AugmentedSystem sys;
+  Eigen::MatrixXd O;  // base signals = O X
+};
+
+struct Composite {
+  Eigen::MatrixXd P;  // X(t + every) = P X(t); empty until built
+  int uses = 0;
+  bool refused = false;  // stiff: stepped with dense propagators instead
+};
+
+struct Event {
+  double t = 0;
+  std::vector<std::pair<int, double>> sources;  // (input j, its corner as computed)
+  std::vector<std::pair<int, int>> switches;    // (switch k, direction)
+};
+
+class NumericalFailure : public std::runtime_error {
+ public:
+  using std::runtime_error::runtime_error;
+};
+
+std::string element_label(const Circuit& c, int e) {
+  const Element& el = c.elements[static_cast<std::size_t>(e)];
+  if (el.part >= 0) return c.parts[static_cast<std::size_t>(el.part)].name;
+  return el.name;
+}
+
+std::string join_names(const std::vector<std::string>& names) {
+  std::string out;
+  for (std::size_t i = 0; i < names.size(); ++i) {
+    if (i > 0) out += i + 1 == names.size() ? " and " : ", ";
+    out += names[i];
+  }
+  return out;
+}
+
+class Engine {
+ public:
+  Engine(const Circuit& circuit, const std::vector<Signal>& signals,
+         const TransientOptions& options, const SampleSink& sink, Diagnostics& diagnostics)
+      : c_(circuit), signals_(signals), opt_(options), sink_(sink), diags_(diagnostics) {}
+
+  TransientSummary run();
+
+ private:
+  const SourcePosition& run_where() const {
+    static const SourcePosition none;
+    return c_.transient ? c_.transient->where : none;
+  }
+  bool check_inputs();
+  bool build_structure();
+  int config_for(const mna::SwitchState& closed);  // -1 on failure (diagnostic added)
+  void check_stability(int config);
+  bool initial_state();
+  int intern_structure();
+  Segment& segment(int config, int structure);
+  void advance(double h);
+  void handle(const Event& ev);
+  std::vector<int> update_pieces(const Event& ev);
+  void reseat(const Eigen::VectorXd& in, Eigen::VectorXd& out, int from, int to,
+              const std::vector<int>& refreshed) const;
+  void interval_with_corners(double t, double tn, std::size_t e_begin, std::size_t e_end,
+                             const std::vector<Event>& events);
+  void emit(double t);
+  std::vector<Event> build_events(double t_end);
+  void rebuild_state(const Eigen::VectorXd& xd, const std::vector<Eigen::VectorXd>& w);
+  std::string unknown_label(int u) const;
+
+  const Circuit& c_;
+  const std::vector<Signal>& signals_;
+  const TransientOptions& opt_;
+  const SampleSink& sink_;
+  Diagnostics& diags_;
+  TransientSummary sum_;
+
+  std::optional<mna::Network> net_;
+  DifferentialStructure topology_;
+  StatePartition partition_;
+  std::vector<int> cap_elements_;  // element index per capacitor branch
+  std::vector<WaveformPtr> inputs_;
+  std::vector<WaveformPtr> gates_;
+  std::vector<Configuration> configs_;
+  std::map<mna::SwitchState, int> config_index_;
+  std::vector<bool> stability_checked_;
+  bool active_ = false;  // negative resistance or controlled source present
+  int negative_resistor_ = -1;
+
+  Compiler compiler_;
+  std::vector<std::vector<Instr>> programs_;
+  std::vector<double> stack_, values_;
+  Eigen::VectorXd base_;
+
+  double time_scale_ = 1;
+  double instant_ = 0;  // time resolution
+  std::vector<SourcePiece> pieces_;
+  std::vector<InputSystem> structures_;
+  std::map<std::string, int> structure_index_;
+  std::map<std::pair<int, int>, Segment> segments_;
+  std::unordered_map<PropagatorKey, PropagatorEntry, PropagatorKeyHash> cache_;
+  double cache_bytes_ = 0;
+  PropagatorKey last_key_{-1, -1, 0};
+  const Eigen::MatrixXd* last_P_ = nullptr;  // into cache_ (node-based: stable)
+  std::map<std::string, Composite> composites_;
+  Eigen::Index states_ = 0;  // r, the same in every configuration
+
+  int config_ = -1;
+  int structure_ = -1;
+  Segment* current_ = nullptr;  // segment(config_, structure_)
+  mna::SwitchState closed_;
+  Eigen::VectorXd X_, Y_, work1_, work2_;
+  Eigen::VectorXd x_op_;  // unknowns at t = 0 (operating point)
+};
+
+bool Engine::check_inputs() {
+  bool ok = true;
+  for (const Element& e : c_.elements) {
+    const bool source = e.kind == ElementKind::VoltageSource || e.kind == ElementKind::CurrentSource;
+    if ((source || e.kind == ElementKind::Switch) && e.waveform && !e.waveform->is_exact()) {
+      diags_.push_back(diag(Severity::Error, e.where,
+                            "formula() sources are not supported by the transient engine yet",
+                            "write the waveform with step, pulse, sine, approach or points"));
+      ok = false;
+    }
+    if (e.kind == ElementKind::Resistor && e.value < 0) {
+      active_ = true;
+      if (negative_resistor_ < 0) negative_resistor_ = static_cast<int>(&e - c_.elements.data());
+    }
+    if (e.kind == ElementKind::Vcvs || e.kind == ElementKind::Vccs || e.kind == ElementKind::Ccvs ||
+        e.kind == ElementKind::Cccs)
+      active_ = true;
+  }
+  return ok;
+}
+
+std::string Engine::unknown_label(int u) const {
+  const auto& names = net_->unknown_names();
+  return u >= 0 && u < static_cast<int>(names.size()) ? names[static_cast<std::size_t>(u)]
+                                                     : std::string("?");
+}
+
+bool Engine::build_structure() {
+  const mna::Network& net = *net_;
+  for (std::size_t e = 0; e < c_.elements.size(); ++e) {
+    const Element& el = c_.elements[e];
+    if (el.kind == ElementKind::Capacitor && el.value != 0) {
+      topology_.capacitor_branches.emplace_back(net.node_unknown(el.a), net.node_unknown(el.b));
+      topology_.capacitances.push_back(el.value);
+      cap_elements_.push_back(static_cast<int>(e));
+    } else if (el.kind == ElementKind::Inductor) {
+      topology_.inductor_unknowns.push_back(net.branch_unknown(static_cast<int>(e)));
+    }
+  }
+  for (int e : net.input_elements())
+    inputs_.push_back(c_.elements[static_cast<std::size_t>(e)].waveform);
+  for (int e : net.switches()) gates_.push_back(c_.elements[static_cast<std::size_t>(e)].waveform);
+  return true;
+}
+
+int Engine::config_for(const mna::SwitchState& closed) {
+  auto it = config_index_.find(closed);
+  if (it != config_index_.end()) return it->second;
+  Configuration cfg;
+  cfg.closed = closed;
+  cfg.descriptor = net_->stamp(c_, closed);
+  if (configs_.empty())
+    partition_ = partition_states(topology_, net_->unknowns(), cfg.descriptor.C);
+  ReductionResult red = reduce(cfg.descriptor, partition_);
+  if (!red.ok) {
+    std::vector<std::string> names;
+    for (int u : red.unknowns) names.push_back(unknown_label(u));
+    std::string msg = red.message;
+    if (!names.empty()) msg += " (unknowns " + join_names(names) + ")";
+    if (red.condition > 0 && std::isfinite(red.condition))
+      msg += "; condition estimate " + fmt_num(red.condition, "");
+    diags_.push_back(diag(Severity::Error, run_where(), msg,
+                          "a node reached only through inductors needs a resistor to the rest of "
+                          "the network (rpar= on an inductor)"));
+    sum_.status = Status::BadInput;
+    return -1;
+  }
+  cfg.ss = std::move(red.system);
+  cfg.condition = red.condition;
+  // Output maps of the base signals for this configuration.
+  const auto nb = static_cast<Eigen::Index>(compiler_.bases.size());
+  const auto n = static_cast<Eigen::Index>(net_->unknowns());
+  const auto m = static_cast<Eigen::Index>(net_->inputs());
+  Eigen::MatrixXd Lx = Eigen::MatrixXd::Zero(nb, n), Ldx = Eigen::MatrixXd::Zero(nb, n),
+                  Lu = Eigen::MatrixXd::Zero(nb, m);
+  for (Eigen::Index b = 0; b < nb; ++b) {
+    const BaseRef ref = compiler_.bases[static_cast<std::size_t>(b)];
+    mna::LinearMap map;
+    switch (ref.kind) {
+      case BaseKind::Node: map = net_->node_voltage(ref.index); break;
+      case BaseKind::PartVoltage: map = net_->part_voltage(c_, ref.index); break;
+      case BaseKind::PartCurrent: map = net_->part_current(c_, ref.index, closed); break;
+      case BaseKind::CapVoltage: map = net_->capacitance_voltage(c_, ref.index); break;
+      case BaseKind::IndCurrent: map = net_->inductance_current(c_, ref.index); break;
+    }
+    if (map.x_row.size() == n) Lx.row(b) = map.x_row;
+    if (map.dx_row.size() == n) Ldx.row(b) = map.dx_row;
+    if (map.u_row.size() == m) Lu.row(b) = map.u_row;
+  }
+  // x = T x_s + D u,  x' = T (A x_s + B u) + D u'.
+  const StateSpace& s = cfg.ss;
+  cfg.Px = Lx * s.T + Ldx * (s.T * s.A);
+  cfg.Pu = Lx * s.D + Ldx * (s.T * s.B) + Lu;
+  cfg.Pdu = Ldx * s.D;
+  const int id = static_cast<int>(configs_.size());
+  configs_.push_back(std::move(cfg));
+  config_index_[closed] = id;
+  stability_checked_.push_back(false);
+  return id;
+}
+
+void Engine::check_stability(int config) {
+  if (!active_ || stability_checked_[static_cast<std::size_t>(config)]) return;
+  stability_checked_[static_cast<std::size_t>(config)] = true;
+  const StateSpace& s = configs_[static_cast<std::size_t>(config)].ss;
+  if (s.A.rows() == 0) return;
+  Eigen::EigenSolver<Eigen::MatrixXd> es(s.A, true);
+  if (es.info() != Eigen::Success) return;
+  const auto& lam = es.eigenvalues();
+  Eigen::Index worst = -1;
+  for (Eigen::Index i = 0; i < lam.size(); ++i) {
+    const double re = lam(i).real();
+    if (re * opt_.until > kGrowthOverRun && re > kGrowthRelative * std::abs(lam(i)) &&
+        (worst < 0 || re > lam(worst).real()))
+      worst = i;
+  }
+  if (worst < 0) return;
+  const double rate = lam(worst).real();
+  const double freq = std::abs(lam(worst).imag()) / (2 * std::numbers::pi);
+  // Participation: eigenvector entries weighted by sqrt(|C11_ii|) (the
+  // square root of the stored energy each state carries).
+  Eigen::VectorXd weight(s.A.rows());
+  for (Eigen::Index i = 0; i < s.A.rows(); ++i)
+    weight(i) = std::abs(es.eigenvectors()(i, worst)) * std::sqrt(std::abs(s.C11(i, i)));
+  std::vector<Eigen::Index> order(static_cast<std::size_t>(weight.size()));
+  for (Eigen::Index i = 0; i < weight.size(); ++i) order[static_cast<std::size_t>(i)] = i;
+  std::sort(order.begin(), order.end(), [&](auto a, auto b) { return weight(a) > weight(b); });
+  std::vector<std::string> names;
+  for (std::size_t i = 0; i < order.size() && i < 3; ++i) {
+    if (weight(order[i]) < 0.1 * weight(order[0])) break;
+    const auto k = static_cast<std::size_t>(order[i]);
+    std::string name = unknown_label(partition_.state_unknown[k]);
+    if (partition_.state_root[k] >= 0) name += " - " + unknown_label(partition_.state_root[k]);
+    names.push_back(name);
+  }
+  std::string msg = "the network is unstable: a natural mode grows at " + fmt_num(rate, "1/s") +
+                    " (doubling every " + fmt_num(std::log(2.0) / rate, "s") + ")";
+  if (freq > 0) msg += ", oscillating at " + fmt_num(freq, "Hz");
+  msg += "; the states taking part most: " + join_names(names) +
+         "; the results grow exactly as the linear equations say";
+  const SourcePosition& where =
+      negative_resistor_ >= 0 ? c_.elements[static_cast<std::size_t>(negative_resistor_)].where
+                              : run_where();
+  diags_.push_back(diag(Severity::Warning, where, msg));
+}
+
+bool Engine::initial_state() {
+  const mna::Network& net = *net_;
+  const mna::SwitchState before = net.initial_switches();
+  const int cfg0 = config_for(before);
+  if (cfg0 < 0) return false;
+  const Configuration& c0 = configs_[static_cast<std::size_t>(cfg0)];
+  const auto m = static_cast<Eigen::Index>(inputs_.size());
+  Eigen::VectorXd u0(m);
+  for (Eigen::Index j = 0; j < m; ++j) u0(j) = inputs_[static_cast<std::size_t>(j)]->value_before_zero();
+
+  std::vector<CapacitorHold> caps;
+  std::vector<InductorHold> inds;
+  for (std::size_t e = 0; e < c_.elements.size(); ++e) {
+    const Element& el = c_.elements[e];
+    if (el.kind == ElementKind::Capacitor && el.v0)
+      caps.push_back({net.node_unknown(el.a), net.node_unknown(el.b), *el.v0, static_cast<int>(e)});
+    if (el.kind == ElementKind::Inductor && el.i0)
+      inds.push_back({net.branch_unknown(static_cast<int>(e)), *el.i0, static_cast<int>(e)});
+  }
+  Eigen::VectorXd xd;
+  if (opt_.initial_dc) {
+    DcProblem p;
+    p.G = c0.descriptor.G;
+    p.rhs = c0.descriptor.B * u0;
+    p.weights = c0.descriptor.C.diagonal().cwiseAbs();
+    p.capacitors = caps;
+    p.inductors = inds;
+    DcSolution s = solve_dc(p);
+    if (!s.ok) {
+      // Name what the inconsistent equations belong to.
+      std::vector<std::string> names;
+      const int n = net.unknowns();
+      std::vector<int> branch_element(static_cast<std::size_t>(n), -1);
+      for (std::size_t e = 0; e < c_.elements.size(); ++e) {
+        const int u = net.branch_unknown(static_cast<int>(e));
+        if (u >= 0) branch_element[static_cast<std::size_t>(u)] = static_cast<int>(e);
+      }
+      for (int row : s.rows) {
+        std::string name;
+        if (row >= n) {
+          name = element_label(c_, caps[static_cast<std::size_t>(row - n)].element) + " (v0)";
+        } else if (branch_element[static_cast<std::size_t>(row)] >= 0) {
+          const int e = branch_element[static_cast<std::size_t>(row)];
+          name = element_label(c_, e);
+          if (c_.elements[static_cast<std::size_t>(e)].i0) name += " (i0)";
+        } else {
+          name = "the currents at " + unknown_label(row);
+        }
+        if (std::find(names.begin(), names.end(), name) == names.end()) names.push_back(name);
+      }
+      std::string msg = s.rows.empty()
+                            ? "the DC operating point could not be computed (condition estimate " +
+                                  fmt_num(s.condition, "") + ")"
+                            : "the initial holds contradict the network at DC: " + join_names(names);
+      diags_.push_back(diag(Severity::Error, run_where(), msg,
+                            "change v0/i0 so they agree, or use `initial=zero`"));
+      sum_.status = Status::BadInput;
+      return false;
+    }
+    if (s.singular) {
+      diags_.push_back(diag(Severity::Note, run_where(),
+                            "the DC operating point leaves a circulating current (a loop of "
+                            "inductances) undetermined; it starts with no circulating flux"));
+    }
+    x_op_ = s.x;
+    xd = states_from_unknowns(partition_, s.x);
+  } else {
+    std::vector<int> conflict;
+    if (!zero_state(partition_, topology_.capacitor_branches, caps, inds, xd, conflict)) {
+      std::vector<std::string> names;
+      for (int e : conflict)
+        if (e >= 0) names.push_back(element_label(c_, e));
+      diags_.push_back(diag(Severity::Error, run_where(),
+                            "contradictory initial voltages: " + join_names(names) +
+                                " are held at different voltages across the same nodes",
+                            "give them the same v0, or drop one"));
+      sum_.status = Status::BadInput;
+      return false;
+    }
+    x_op_ = c0.ss.T * xd + c0.ss.D * u0;
+  }
+  closed_ = before;
+  config_ = cfg0;
+  // Operating point entries (the state at t = 0 after holds).
+  for (std::size_t k = 1; k < c_.nodes.size(); ++k) {
+    if (c_.nodes[k].hidden) continue;
+    const int u = net.node_unknown(static_cast<int>(k));
+    if (u >= 0) sum_.operating_point.push_back({c_.nodes[k].name, x_op_(u), Dimension::volt()});
+  }
+  for (const Part& part : c_.parts) {
+    if (part.main < 0) continue;
+    const int u = net.branch_unknown(part.main);
+    if (u < 0) continue;
+    if (part.kind == ElementKind::Inductor)
+      sum_.operating_point.push_back({part.name + ".il", x_op_(u), Dimension::ampere()});
+    else if (part.kind == ElementKind::VoltageSource)
+      sum_.operating_point.push_back({part.name + ".i", x_op_(u), Dimension::ampere()});
+  }
+  // Initial pieces at t = 0 (right-continuous).
+  pieces_.clear();
+  for (const auto& w : inputs_) pieces_.push_back(source_piece(w->piece(0.0).terms, time_scale_));
+  std::vector<Eigen::VectorXd> w;
+  for (const auto& p : pieces_) w.push_back(p.w0);
+  structure_ = intern_structure();
+  rebuild_state(xd, w);
+  return true;
+}
+
+int Engine::intern_structure() {
+  InputSystem sys = assemble_inputs(pieces_);
+  std::string key;
+  const auto put = [&key](const Eigen::MatrixXd& M) {
+    const Eigen::Index dims[2] = {M.rows(), M.cols()};
+    key.append(reinterpret_cast<const char*>(dims), sizeof dims);
+    key.append(reinterpret_cast<const char*>(M.data()),
+               sizeof(double) * static_cast<std::size_t>(M.size()));
+  };
+  put(sys.S);
+  put(sys.H);
+  auto it = structure_index_.find(key);
+  if (it != structure_index_.end()) return it->second;
+  const int id = static_cast<int>(structures_.size());
+  structures_.push_back(std::move(sys));
+  structure_index_.emplace(std::move(key), id);
+  return id;
+}
+
+Segment& Engine::segment(int config, int structure) {
+  auto it = segments_.find({config, structure});
+  if (it != segments_.end()) return it->second;
+  const Configuration& cfg = configs_[static_cast<std::size_t>(config)];
+  const InputSystem& in = structures_[static_cast<std::size_t>(structure)];
+  Segment seg;
+  seg.sys = make_augmented(cfg.ss.A, cfg.ss.B, cfg.ss.C11, cfg.ss.Gs, cfg.ss.Bs, in.S, in.H);
+  const Eigen::Index r = cfg.ss.A.rows();
+  const Eigen::Index q = in.S.rows();
+  seg.O.resize(cfg.Px.rows(), r + q);
+  seg.O.leftCols(r) = cfg.Px;
+  seg.O.rightCols(q) = cfg.Pu * in.H + cfg.Pdu * (in.H * in.S);
+  return segments_.emplace(std::make_pair(config, structure), std::move(seg)).first->second;
+}
+
+void Engine::rebuild_state(const Eigen::VectorXd& xd, const std::vector<Eigen::VectorXd>& w) {
+  const InputSystem& in = structures_[static_cast<std::size_t>(structure_)];
+  const Eigen::Index r = xd.size();
+  states_ = r;
+  const Eigen::Index N = r + in.S.rows();
+  X_.resize(N);
+  Y_.resize(N);
+  X_.head(r) = xd;
+  X_(r) = 1.0;  // the shared unit state
+  for (std::size_t j = 0; j < w.size(); ++j)
+    X_.segment(r + in.offset[j], in.size[j]) = w[j];
+}
+
+void Engine::advance(double h) {
+  if (!(h > 0)) return;
+  const PropagatorKey key{config_, structure_, std::llround(h / instant_)};
+  Y_.resize(X_.size());  // no-op unless a corner changed the input structure
+  // One-entry memo: the steady case (the same full step every sample) skips
+  // the hash lookup.
+  if (last_P_ && last_key_ == key) {
+    multiply(*last_P_, X_, Y_);
+    X_.swap(Y_);
+    return;
+  }
+  auto it = cache_.find(key);
+  if (it != cache_.end() && it->second.P.size() > 0) {
+    last_key_ = key;
+    last_P_ = &it->second.P;
+    multiply(it->second.P, X_, Y_);
+    X_.swap(Y_);
+    return;
+  }
+  Segment& seg = segment(config_, structure_);
+  const Eigen::Index N = seg.sys.M.rows();
+  PropagatorEntry& entry = cache_[key];
+  ++entry.uses;
+  const long action = expm_action_cost(seg.sys, h);
+  const bool dense = entry.uses >= kDenseAfterUses ||
+                     static_cast<double>(action) > kActionLimitPerState * static_cast<double>(N);
+  if (dense) {
+    const double bytes = 8.0 * static_cast<double>(N * N);
+    if (cache_bytes_ + bytes > kCacheBytes) {
+      last_P_ = nullptr;
+      cache_.clear();
+      cache_bytes_ = 0;
+    }
+    Eigen::MatrixXd P;
+    try {
+      P = dense_propagator(seg.sys, h);
+    } catch (const std::exception& ex) {
+      throw NumericalFailure(std::string("the matrix exponential failed: ") + ex.what());
+    }
+    ++sum_.propagators_built;
+    if (!P.allFinite())
+      throw NumericalFailure("the propagator over " + fmt_num(h, "s") + " is not finite");
+    PropagatorEntry& e2 = cache_[key];
+    e2.P = std::move(P);
+    cache_bytes_ += bytes;
+    multiply(e2.P, X_, Y_);
+  } else {
+    expm_action(seg.sys, h, X_, Y_, work1_, work2_);
+  }
+  X_.swap(Y_);
+}
+
+std::vector<Event> Engine::build_events(double t_end) {
+  struct Raw {
+    double t;
+    int kind;  // 0 source, 1 switch
+    int index;
+    int dir;
+  };
+  std::vector<Raw> raw;
+  for (std::size_t j = 0; j < inputs_.size(); ++j)
+    for (double t : inputs_[j]->corners(t_end)) raw.push_back({t, 0, static_cast<int>(j), 0});
+  for (std::size_t k = 0; k < gates_.size(); ++k)
+    for (const auto& [t, dir] : gates_[k]->crossings(0.5, t_end))
+      raw.push_back({t, 1, static_cast<int>(k), dir});
+  std::sort(raw.begin(), raw.end(), [](const Raw& a, const Raw& b) { return a.t < b.t; });
+  std::vector<Event> out;
+  for (std::size_t i = 0; i < raw.size();) {
+    Event ev;
+    const double t0 = raw[i].t;
+    std::size_t j = i;
+    for (; j < raw.size() && raw[j].t - t0 <= instant_; ++j) {
+      if (raw[j].kind == 0) {
+        bool merged = false;
+        for (auto& s : ev.sources)
+          if (s.first == raw[j].index) {
+            s.second = std::max(s.second, raw[j].t);
+            merged = true;
+          }
+        if (!merged) ev.sources.emplace_back(raw[j].index, raw[j].t);
+      } else {
+        bool merged = false;
+        for (auto& s : ev.switches)
+          if (s.first == raw[j].index) {
+            s.second = raw[j].dir;
+            merged = true;
+          }
+        if (!merged) ev.switches.emplace_back(raw[j].index, raw[j].dir);
+      }
+    }
+    // Snap to the sample grid (or to 0) when within the time resolution.
+    const double k = std::round(t0 / opt_.every);
+    ev.t = std::abs(t0 - k * opt_.every) <= instant_ ? k * opt_.every : t0;
+    if (ev.t < instant_) ev.t = 0;
+    out.push_back(std::move(ev));
+    i = j;
+  }
+  return out;
+}
+
+std::vector<int> Engine::update_pieces(const Event& ev) {
+  std::vector<int> refreshed;
+  for (const auto& [j, corner] : ev.sources) {
+    const auto sj = static_cast<std::size_t>(j);
+    pieces_[sj] = source_piece(inputs_[sj]->piece(corner).terms, time_scale_);
+    refreshed.push_back(j);
+  }
+  if (!refreshed.empty()) structure_ = intern_structure();
+  return refreshed;
+}
+
+void Engine::reseat(const Eigen::VectorXd& in, Eigen::VectorXd& out, int from, int to,
+                    const std::vector<int>& refreshed) const {
+  const InputSystem& a = structures_[static_cast<std::size_t>(from)];
+  const InputSystem& b = structures_[static_cast<std::size_t>(to)];
+  const Eigen::Index r = states_;
+  out.resize(r + b.S.rows());
+  out.head(r) = in.head(r);
+  out(r) = in(r);  // the shared unit state
+  for (std::size_t j = 0; j < b.offset.size(); ++j) {
+    const bool fresh = std::find(refreshed.begin(), refreshed.end(), static_cast<int>(j)) !=
+                       refreshed.end();
+    if (fresh)
+      out.segment(r + b.offset[j], b.size[j]) = b.w0.segment(b.offset[j], b.size[j]) * in(r);
+    else
+      out.segment(r + b.offset[j], b.size[j]) = in.segment(r + a.offset[j], a.size[j]);
+  }
+}
+
+void Engine::handle(const Event& ev) {
+  ++sum_.segments;
+  const int from = structure_;
+  const std::vector<int> refreshed = update_pieces(ev);
+  if (!ev.switches.empty()) {
+    mna::SwitchState next = closed_;
+    for (const auto& [k, dir] : ev.switches) next[static_cast<std::size_t>(k)] = dir > 0;
+    if (next != closed_) {
+      ++sum_.switch_events;
+      const int cfg = config_for(next);
+      if (cfg < 0) throw NumericalFailure("");  // diagnostic already added
+      closed_ = std::move(next);
+      config_ = cfg;
+      check_stability(cfg);
+    }
+  }
+  // The physical state x_s is the same in every configuration (switches
+  // change G only); sources restart at their new piece.
+  reseat(X_, Y_, from, structure_, refreshed);
+  X_.swap(Y_);
+  current_ = nullptr;
+}
+
+// One output interval [t, t + every] with source corners strictly inside and
+// no switching: the map from X(t) to X(t + every) is linear, so when the same
+// pattern of corners recurs (pulse trains) it is cached as one matrix,
+// [[Phi(every), G], [0, W]]: its state block is the full step's and only the
+// q input columns are new, computed by the action of the exponential on q
+// unit vectors. A new pattern is stepped directly (actions on X).
+void Engine::interval_with_corners(double t, double tn, std::size_t e_begin, std::size_t e_end,
+                                   const std::vector<Event>& events) {
+  struct Step {
+    double length;
+    int structure;            // structure during this step
+    std::vector<int> refreshed;  // sources restarted at its end
+    int next;                 // structure after its end
+  };
+  std::vector<Step> steps;
+  const int s_start = structure_;
+  std::string key;
+  auto put = [&key](long long v) { key.append(reinterpret_cast<const char*>(&v), sizeof v); };
+  put(config_);
+  put(s_start);
+  double tprev = t;
+  for (std::size_t i = e_begin; i < e_end; ++i) {
+    Step st;
+    st.length = events[i].t - tprev;
+    st.structure = structure_;
+    st.refreshed = update_pieces(events[i]);
+    st.next = structure_;
+    tprev = events[i].t;
+    put(std::llround((events[i].t - t) / instant_));
+    put(st.next);
+    for (int j : st.refreshed) put(j);
+    put(-1);
+    steps.push_back(std::move(st));
+  }
+  steps.push_back({tn - tprev, structure_, {}, structure_});
+  sum_.segments += e_end - e_begin;
+  current_ = nullptr;
+
+  auto found = composites_.find(key);
+  if (found != composites_.end() && found->second.P.size() > 0) {
+    Y_.resize(found->second.P.rows());
+    Y_.noalias() = found->second.P * X_;
+    X_.swap(Y_);
+    return;
+  }
+  Composite& comp = composites_[key];
+  ++comp.uses;
+  // Step directly.
+  for (const Step& st : steps) {
+    structure_ = st.structure;
+    advance(st.length);
+    if (st.next != st.structure || !st.refreshed.empty()) {
+      reseat(X_, Y_, st.structure, st.next, st.refreshed);
+      X_.swap(Y_);
+    }
+  }
+  structure_ = steps.back().next;
+  if (comp.uses < 2 || comp.refused) return;
+  // Second time this pattern: build its matrix, if every step is cheap by
+  // the action (not stiff).
+  for (const Step& st : steps) {
+    const Segment& seg = segment(config_, st.structure);
+    if (static_cast<double>(expm_action_cost(seg.sys, st.length)) >
+        kActionLimitPerState * static_cast<double>(seg.sys.M.rows())) {
+      comp.refused = true;
+      return;
+    }
+  }
+  const Eigen::Index r = states_;
+  const Eigen::Index q0 = structures_[static_cast<std::size_t>(s_start)].S.rows();
+  const Eigen::Index q1 = structures_[static_cast<std::size_t>(structure_)].S.rows();
+  Eigen::MatrixXd P = Eigen::MatrixXd::Zero(r + q1, r + q0);
+  // State block: Phi(every), from the full-step propagator of the start.
+  {
+    const PropagatorKey full{config_, s_start, std::llround(opt_.every / instant_)};
+    auto it = cache_.find(full);
+    if (it != cache_.end() && it->second.P.size() > 0) {
+      P.topLeftCorner(r, r) = it->second.P.topLeftCorner(r, r);
+    } else {
+      Segment& seg = segment(config_, s_start);
+      P.topLeftCorner(r, r) = dense_propagator(seg.sys, opt_.every).topLeftCorner(r, r);
+      ++sum_.propagators_built;
+    }
+  }
+  Eigen::VectorXd v, y;
+  for (Eigen::Index j = 0; j < q0; ++j) {
+    v = Eigen::VectorXd::Zero(r + q0);
+    v(r + j) = 1;
+    for (const Step& st : steps) {
+      const Segment& seg = segment(config_, st.structure);
+      if (st.length > 0) {
+        expm_action(seg.sys, st.length, v, y, work1_, work2_);
+        v.swap(y);
+      }
+      if (st.next != st.structure || !st.refreshed.empty()) {
+        reseat(v, y, st.structure, st.next, st.refreshed);
+        v.swap(y);
+      }
+    }
+    P.col(r + j) = v;
+  }
+  if (!P.allFinite()) {
+    comp.refused = true;
+    return;
+  }
+  comp.P = std::move(P);
+}
+
+void Engine::emit(double t) {
+  if (!current_) current_ = &segment(config_, structure_);
+  Segment& seg = *current_;
+  base_.noalias() = seg.O * X_;
+  for (std::size_t s = 0; s < programs_.size(); ++s)
+    values_[s] = run_program(programs_[s], base_.data(), stack_.data());
+  for (double v : values_) {
+    if (!std::isfinite(v)) {
+      const Configuration& cfg = configs_[static_cast<std::size_t>(config_)];
+      std::string msg = "the solution is not finite at t = " + fmt_num(t, "s");
+      if (active_) msg += " (the network is unstable and has grown beyond the range of numbers)";
+      if (cfg.condition > 0) msg += "; condition estimate of the algebraic part " + fmt_num(cfg.condition, "");
+      throw NumericalFailure(msg);
+    }
+  }
+  sink_(t, values_.data(), values_.size());
+  ++sum_.samples;
+}
+
+TransientSummary Engine::run() {
+  const auto start = std::chrono::steady_clock::now();
+  auto finish = [&]() {
+    sum_.seconds =
+        std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
+    return sum_;
+  };
+  if (!(opt_.until > 0) || !(opt_.every > 0) || !std::isfinite(opt_.until) ||
+      !std::isfinite(opt_.every)) {
+    diags_.push_back(diag(Severity::Error, run_where(),
+                          "the transient needs until > 0 and every > 0 (got until=" +
+                              fmt_num(opt_.until, "s") + ", every=" + fmt_num(opt_.every, "s") + ")"));
+    sum_.status = Status::BadInput;
+    return finish();
+  }
+  if (!check_inputs()) {
+    sum_.status = Status::BadInput;
+    return finish();
+  }
+  net_ = mna::Network::analyse(c_, opt_.strict, diags_);
+  if (!net_) {
+    sum_.status = Status::BadInput;
+    return finish();
+  }
+  // Signals.
+  for (const Signal& s : signals_) {
+    std::vector<Instr> code;
+    std::string error;
+    if (!compiler_.compile(s.expr, code, error)) {
+      diags_.push_back(diag(Severity::Error, s.where, "cannot evaluate signal " + s.name +
+                                                          (error.empty() ? "" : ": " + error)));
+      sum_.status = Status::BadInput;
+      return finish();
+    }
+    programs_.push_back(std::move(code));
+  }
+  std::size_t depth = 1;
+  for (const auto& p : programs_) depth = std::max(depth, p.size());
+  stack_.assign(depth, 0.0);
+  values_.assign(programs_.size(), 0.0);
+  base_.resize(static_cast<Eigen::Index>(compiler_.bases.size()));
+
+  // Sample grid (NETLIST.md section 7).
+  const double ratio = opt_.until / opt_.every;
+  const double whole = std::round(ratio);
+  long n_samples;
+  if (std::abs(ratio - whole) <= kWholeSlack * ratio) {
+    n_samples = static_cast<long>(whole);
+  } else {
+    n_samples = static_cast<long>(std::floor(ratio));
+    diags_.push_back(diag(Severity::Warning, run_where(),
+                          "until/every = " + std::to_string(ratio) +
+                              " is not a whole number: the last sample is at " +
+                              fmt_num(static_cast<double>(n_samples) * opt_.every, "s")));
+  }
+  const double t_end = static_cast<double>(n_samples) * opt_.every;
+  time_scale_ = opt_.every;
+  instant_ = kInstantUlps * std::numeric_limits<double>::epsilon() * std::max(t_end, opt_.every);
+
+  try {
+    build_structure();
+    if (!initial_state()) return finish();
+    sum_.states = static_cast<std::size_t>(configs_[static_cast<std::size_t>(config_)].ss.A.rows());
+    check_stability(config_);
+    // A gate that differs at 0 from before 0 switches at t = 0.
+    Event at_zero;
+    for (std::size_t k = 0; k < gates_.size(); ++k) {
+      const bool now = gates_[k]->value(0.0) > 0.5;
+      if (now != closed_[k]) at_zero.switches.emplace_back(static_cast<int>(k), now ? 1 : -1);
+    }
+    if (!at_zero.switches.empty()) {
+      handle(at_zero);
+      --sum_.segments;
+    }
+    const std::vector<Event> events = build_events(t_end);
+    std::size_t e = 0;
+    while (e < events.size() && events[e].t == 0) {
+      handle(events[e++]);
+      --sum_.segments;
+    }
+    sum_.segments = 1;
+    emit(0.0);
+    const long progress_every = std::max(1L, n_samples / kProgressCalls);
+    double t = 0;
+    for (long k = 0; k < n_samples;) {
+      const double tn = static_cast<double>(k + 1) * opt_.every;
+      const bool at_sample = t == static_cast<double>(k) * opt_.every;
+      if (at_sample && e < events.size() && events[e].t < tn) {
+        std::size_t e2 = e;
+        bool switching = false;
+        for (; e2 < events.size() && events[e2].t < tn; ++e2)
+          switching = switching || !events[e2].switches.empty();
+        if (!switching) {
+          interval_with_corners(t, tn, e, e2, events);
+          e = e2;
+          t = tn;
+          ++k;
+          while (e < events.size() && events[e].t == tn) handle(events[e++]);
+          emit(t);
+          if (opt_.progress && k % progress_every == 0)
+            opt_.progress(static_cast<double>(k) / static_cast<double>(n_samples));
+          continue;
+        }
+      }
+      if (e < events.size() && events[e].t < tn) {
+        advance(events[e].t - t);
+        t = events[e].t;
+        handle(events[e++]);
+        continue;
+      }
+      advance(at_sample ? opt_.every : tn - t);
+      t = tn;
+      ++k;
+      while (e < events.size() && events[e].t == tn) handle(events[e++]);
+      emit(t);
+      if (opt_.progress && k % progress_every == 0)
+        opt_.progress(static_cast<double>(k) / static_cast<double>(n_samples));
+    }
+  } catch (const NumericalFailure& ex) {
+    if (std::string(ex.what()).empty()) {
+      if (sum_.status == Status::Ok) sum_.status = Status::BadInput;
+    } else {
+      diags_.push_back(diag(Severity::Error, run_where(), ex.what(),
+                            "check for a negative resistance or an extreme element value"));
+      sum_.status = Status::Numerical;
+    }
+  }
+  return finish();
+}
+
+}  // namespace
+
+TransientSummary run_transient(const Circuit& circuit, const std::vector<Signal>& signals,
+                               const TransientOptions& options, const SampleSink& sink,
+                               Diagnostics& diagnostics) {
+  Engine engine(circuit, signals, options, sink, diagnostics);
+  return engine.run();
+}
+
+SampledRun run_transient_sampled(const Circuit& circuit, const std::vector<Signal>& signals,
+                                 const TransientOptions& options, Diagnostics& diagnostics) {
+  SampledRun out;
+  out.values.resize(signals.size());
+  const SampleSink sink = [&out](double t, const double* v, std::size_t n) {
+    out.time.push_back(t);
+    for (std::size_t i = 0; i < n; ++i) out.values[i].push_back(v[i]);
+  };
+  out.summary = run_transient(circuit, signals, options, sink, diagnostics);
+  return out;
+}
+
+}  // namespace ringdown::solver
