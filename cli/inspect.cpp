@@ -101,7 +101,18 @@ std::string element_value(const Circuit& c, const Element& e) {
     case ElementKind::Capacitor: return format_si(e.value, "F");
     case ElementKind::Inductor: return format_si(e.value, "H");
     case ElementKind::VoltageSource:
-    case ElementKind::CurrentSource: return e.waveform ? e.waveform->describe() : "?";
+    case ElementKind::CurrentSource: {
+      if (!e.waveform) return "?";
+      // A constant source describes itself as a bare number; show it in SI with
+      // the unit its kind gives it ("48 V"). Calls and sums are shown as written.
+      std::string text = e.waveform->describe();
+      if (text.find('(') == std::string::npos && e.waveform->is_exact() &&
+          e.waveform->value_before_zero() == e.waveform->value(0.0)) {
+        return format_si(e.waveform->value(0.0),
+                         e.kind == ElementKind::VoltageSource ? "V" : "A");
+      }
+      return text;
+    }
     case ElementKind::Vcvs: return control() + " gain=" + format_si(e.value, "");
     case ElementKind::Vccs: return control() + " gain=" + format_si(e.value, "S");
     case ElementKind::Ccvs: return "through=" + through() + " gain=" + format_si(e.value, "Ohm");
