@@ -49,12 +49,36 @@ ExpandedLine expand_tabs(const std::string& source) {
       const int next = (column / kTabWidth + 1) * kTabWidth;
       out.text.append(static_cast<std::size_t>(next - column), ' ');
       column = next;
+    } else if (c < 0x20 || c == 0x7f) {
+      // Control characters (escape sequences, NUL, CR) would garble the
+      // terminal: shown as '?', one column each.
+      out.text.push_back('?');
+      ++column;
     } else {
       out.text.push_back(ch);
       if (!is_utf8_continuation(c)) ++column;
     }
   }
   out.display_column.push_back(column);
+  return out;
+}
+
+// Messages quote source text; control characters in them are written as
+// \xNN so that they cannot garble the terminal.
+std::string printable(const std::string& text) {
+  std::string out;
+  out.reserve(text.size());
+  for (char ch : text) {
+    const auto c = static_cast<unsigned char>(ch);
+    if ((c < 0x20 && ch != '\n') || c == 0x7f) {
+      static const char* digits = "0123456789abcdef";
+      out += "\\x";
+      out += digits[c >> 4];
+      out += digits[c & 15];
+    } else {
+      out.push_back(ch);
+    }
+  }
   return out;
 }
 
@@ -82,7 +106,7 @@ std::string render(const Diagnostic& diagnostic) {
   }
   out += severity_word(diagnostic.severity);
   out += ": ";
-  out += diagnostic.message;
+  out += printable(diagnostic.message);
   out += '\n';
 
   if (where.line > 0 && !where.source_line.empty()) {
@@ -105,7 +129,7 @@ std::string render(const Diagnostic& diagnostic) {
   }
   if (!diagnostic.hint.empty()) {
     out += "hint: ";
-    out += diagnostic.hint;
+    out += printable(diagnostic.hint);
     out += '\n';
   }
   return out;

@@ -545,6 +545,16 @@ void Loader::syntax_error(const SourceFile& file, const RawStatement& raw,
 }
 
 void Loader::read_file(SourceFile& file, std::vector<std::string>& include_stack) {
+  // A NUL byte never occurs in a text file: this is a binary (or a wrong
+  // path), and reporting each of its "lines" would only flood the terminal.
+  if (const auto nul = file.code.find('\0'); nul != std::string::npos) {
+    const char* at = file.code.data() + nul;
+    error_at(at, at + 1, "'" + file.path + "' is not a text file (it contains a NUL byte)",
+             "circuit files are plain text, usually ending in .rlc");
+    // Its "line" is binary: showing it would only garble the terminal.
+    if (!diagnostics_.empty()) diagnostics_.back().diagnostic.where.source_line.clear();
+    return;
+  }
   std::vector<SplitProblem> problems;
   std::vector<RawStatement> raws = split_statements(file, problems);
   auto& order = statement_order_[&file];
@@ -620,7 +630,8 @@ void Loader::read_statement(SourceFile& file, const RawStatement& raw,
       return;
     }
     std::ifstream in(target, std::ios::binary);
-    if (!in) {
+    std::error_code dir_ec;
+    if (!in || fs::is_directory(target, dir_ec)) {
       error(*path, "cannot read included file '" + target.string() + "'",
             "include paths are relative to the including file (" +
                 (file.directory.empty() ? std::string(".") : file.directory) + ")");
@@ -3299,6 +3310,16 @@ LoadResult Loader::load(std::string text, const std::string& file_name, bool fro
 }  // namespace
 
 LoadResult load_file(const std::string& path, const LoadOptions& options) {
+  std::error_code ec;
+  if (fs::is_directory(path, ec)) {
+    LoadResult r;
+    Diagnostic d;
+    d.where.file = path;
+    d.message = "'" + path + "' is a directory, not a circuit file";
+    d.hint = "name a file, e.g. " + (fs::path(path) / "circuit.rlc").string();
+    r.diagnostics.push_back(d);
+    return r;
+  }
   std::ifstream in(path, std::ios::binary);
   if (!in) {
     LoadResult r;
