@@ -7,7 +7,10 @@
 #include <string>
 #include <vector>
 
+#include <gtest/gtest.h>
+
 #include "parser/circuit.hpp"
+#include "solver/transient.hpp"
 #include "parser/waveform.hpp"
 
 namespace ringdown::test {
@@ -120,5 +123,21 @@ class CircuitBuilder {
     return pi;
   }
 };
+
+// Runs the builder's circuit from 0 to `until` with output step `every`;
+// any error diagnostic or a non-Ok status fails the calling test.
+inline solver::SampledRun run(const CircuitBuilder& b, const std::vector<Signal>& signals,
+                              double until, double every, bool dc = true) {
+  solver::TransientOptions opt;
+  opt.until = until;
+  opt.every = every;
+  opt.initial_dc = dc;
+  Diagnostics d;
+  solver::SampledRun r = solver::run_transient_sampled(b.c, signals, opt, d);
+  for (const auto& x : d)
+    if (x.severity == Severity::Error) ADD_FAILURE() << "diagnostic: " << x.message;
+  EXPECT_EQ(r.summary.status, solver::Status::Ok);
+  return r;
+}
 
 }  // namespace ringdown::test

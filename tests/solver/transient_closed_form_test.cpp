@@ -30,19 +30,7 @@ constexpr double kPi = std::numbers::pi;
 // signal's peak (issue 3, "Targets"). Most checks hold far tighter.
 constexpr double kPeakTolerance = 1e-9;
 
-solver::SampledRun run(const CircuitBuilder& b, const std::vector<Signal>& signals, double until,
-                       double every, bool dc = true) {
-  solver::TransientOptions opt;
-  opt.until = until;
-  opt.every = every;
-  opt.initial_dc = dc;
-  Diagnostics d;
-  solver::SampledRun r = solver::run_transient_sampled(b.c, signals, opt, d);
-  for (const auto& x : d)
-    if (x.severity == Severity::Error) ADD_FAILURE() << "diagnostic: " << x.message;
-  EXPECT_EQ(r.summary.status, solver::Status::Ok);
-  return r;
-}
+using ringdown::test::run;
 
 template <class F>
 double max_error(const solver::SampledRun& r, std::size_t signal, F exact) {

@@ -22,19 +22,7 @@ using ringdown::Signal;
 using ringdown::test::CircuitBuilder;
 namespace solver = ringdown::solver;
 
-solver::SampledRun run(const CircuitBuilder& b, const std::vector<Signal>& signals, double until,
-                       double every, bool dc = true) {
-  solver::TransientOptions opt;
-  opt.until = until;
-  opt.every = every;
-  opt.initial_dc = dc;
-  Diagnostics d;
-  solver::SampledRun r = solver::run_transient_sampled(b.c, signals, opt, d);
-  for (const auto& x : d)
-    if (x.severity == Severity::Error) ADD_FAILURE() << "diagnostic: " << x.message;
-  EXPECT_EQ(r.summary.status, solver::Status::Ok);
-  return r;
-}
+using ringdown::test::run;
 
 double peak(const std::vector<double>& v) {
   double p = 0;
