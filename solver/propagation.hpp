@@ -10,7 +10,11 @@
 //    Higham ("Computing the action of the matrix exponential, with an
 //    application to exponential integrators", SIAM J. Sci. Comput. 33(2),
 //    2011), for step lengths met once (partial steps to corners between
-//    output samples): a few matrix-vector products, no dense expm;
+//    output samples): a few matrix-vector products, no dense expm; and, on
+//    large sparse systems (long ladders), for every step when its products
+//    over the run cost less than one dense expm (compressed-row products,
+//    O(nnz) each; the engine compares action_flops and
+//    dense_propagator_flops);
 //  - fixed-size Eigen kernels for the matrix-vector product when the
 //    augmented size is <= 8.
 // The dense propagator comes from one function, dense_propagator(): the
@@ -22,6 +26,7 @@
 #pragma once
 
 #include <Eigen/Dense>
+#include <Eigen/SparseCore>
 #include <cstdint>
 #include <memory>
 #include <unordered_map>
@@ -42,7 +47,27 @@ struct AugmentedSystem {
   Eigen::VectorXd scale;    // D
   double shift = 0;         // trace(M)/size, for the action (Al-Mohy & Higham sec. 3.1)
   double shifted_norm1 = 0; // || balanced - shift I ||_1
+  // balanced - shift I in compressed rows, when the augmented matrix is large and sparse
+  // (circuit matrices: a few entries per row); the action then costs O(nnz) per product
+  // instead of O(N^2).
+  bool use_sparse = false;
+  Eigen::SparseMatrix<double, Eigen::RowMajor> sparse_shifted;
 };
+
+// Taylor degree m and number of sub-steps s of the action for one step length (Al-Mohy &
+// Higham 2011, sec. 3): computed once per cached step length, m * s products per action.
+struct TaylorPlan {
+  int m = -1;
+  long s = 0;
+  long products() const { return static_cast<long>(m) * s; }
+};
+TaylorPlan plan_action(const AugmentedSystem& sys, double h);
+
+// Floating-point operations of one action with `plan` (products and vector updates), and
+// an estimate of one dense propagator's (Pade 13 with squarings, Higham 2005): the engine
+// compares them to choose between the two for a step length used `uses` times.
+double action_flops(const AugmentedSystem& sys, const TaylorPlan& plan);
+double dense_propagator_flops(const AugmentedSystem& sys, double h);
 
 // Builds M, E, F from the reduced blocks and the input system.
 AugmentedSystem make_augmented(const Eigen::MatrixXd& A, const Eigen::MatrixXd& Bm,
@@ -59,6 +84,10 @@ long expm_action_cost(const AugmentedSystem& sys, double h);
 // y = expm(M h) v (y and v must not alias). `work` is scratch (resized once).
 void expm_action(const AugmentedSystem& sys, double h, const Eigen::VectorXd& v,
                  Eigen::VectorXd& y, Eigen::VectorXd& work1, Eigen::VectorXd& work2);
+// The same with the plan of plan_action(sys, h) (no parameter search per call).
+void expm_action(const AugmentedSystem& sys, double h, const TaylorPlan& plan,
+                 const Eigen::VectorXd& v, Eigen::VectorXd& y, Eigen::VectorXd& work1,
+                 Eigen::VectorXd& work2);
 
 // y = P x with fixed-size kernels for sizes <= 8 (y and x must not alias).
 void multiply(const Eigen::MatrixXd& P, const Eigen::VectorXd& x, Eigen::VectorXd& y);

@@ -191,11 +191,17 @@ struct PropagatorKeyHash {
 struct PropagatorEntry {
   Eigen::MatrixXd P;
   int uses = 0;
+  TaylorPlan plan;      // of the action for this length (m < 0: not computed yet)
+  bool action = false;  // stepped by the action for good: cheaper than a dense expm here
 };
 
 struct Segment {
   AugmentedSystem sys;
   Eigen::MatrixXd O;  // base signals = O X
+  // When every recorded signal is one base signal (the common case: node voltages, currents),
+  // their rows of O gathered once, row-major, so a sample is one small product straight
+  // into the values (no per-signal program).
+  Eigen::Matrix<double, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor> direct;
 };
 
 struct Composite {
@@ -250,7 +256,7 @@ class Engine {
   bool initial_state();
   int intern_structure();
   Segment& segment(int config, int structure);
-  void advance(double h);
+  void advance(double h, long uses_left = 1);
   void handle(const Event& ev);
   std::vector<int> update_pieces(const Event& ev);
   void reseat(const Eigen::VectorXd& in, Eigen::VectorXd& out, int from, int to,
@@ -284,6 +290,7 @@ class Engine {
   Compiler compiler_;
   std::vector<std::vector<Instr>> programs_;
   std::vector<double> stack_, values_;
+  std::vector<Eigen::Index> direct_rows_;  // base of each signal, when all are plain loads
   Eigen::VectorXd base_;
 
   double time_scale_ = 1;
@@ -295,7 +302,9 @@ class Engine {
   std::unordered_map<PropagatorKey, PropagatorEntry, PropagatorKeyHash> cache_;
   double cache_bytes_ = 0;
   PropagatorKey last_key_{-1, -1, 0};
-  const Eigen::MatrixXd* last_P_ = nullptr;  // into cache_ (node-based: stable)
+  PropagatorEntry* last_entry_ = nullptr;  // into cache_ (node-based: stable)
+  double last_h_ = -1;                     // the length last_key_ was made from
+  const AugmentedSystem* last_sys_ = nullptr;  // its system (segments_ is node-based too)
   std::map<std::string, Composite> composites_;
   Eigen::Index states_ = 0;  // r, the same in every configuration
 
@@ -592,6 +601,11 @@ Segment& Engine::segment(int config, int structure) {
   seg.O.resize(cfg.Px.rows(), r + q);
   seg.O.leftCols(r) = cfg.Px;
   seg.O.rightCols(q) = cfg.Pu * in.H + cfg.Pdu * (in.H * in.S);
+  if (!direct_rows_.empty()) {
+    seg.direct.resize(static_cast<Eigen::Index>(direct_rows_.size()), r + q);
+    for (std::size_t k = 0; k < direct_rows_.size(); ++k)
+      seg.direct.row(static_cast<Eigen::Index>(k)) = seg.O.row(direct_rows_[k]);
+  }
   return segments_.emplace(std::make_pair(config, structure), std::move(seg)).first->second;
 }
 
@@ -608,38 +622,80 @@ void Engine::rebuild_state(const Eigen::VectorXd& xd, const std::vector<Eigen::V
     X_.segment(r + in.offset[j], in.size[j]) = w[j];
 }
 
-void Engine::advance(double h) {
+// One step of length h. `uses_left`: how many more times the caller expects to take this
+// length (the remaining samples for the full output step): a sparse system whose action over
+// those steps costs less than one dense expm is stepped by the action for good.
+void Engine::advance(double h, long uses_left) {
   if (!(h > 0)) return;
-  const PropagatorKey key{config_, structure_, std::llround(h / instant_)};
   Y_.resize(X_.size());  // no-op unless a corner changed the input structure
   // One-entry memo: the steady case (the same full step every sample) skips
-  // the hash lookup.
-  if (last_P_ && last_key_ == key) {
-    multiply(*last_P_, X_, Y_);
+  // the key's rounding and the hash lookup.
+  if (last_entry_ && h == last_h_ && last_key_.config == config_ &&
+      last_key_.structure == structure_) {
+    if (last_entry_->P.size() > 0) {
+      multiply(last_entry_->P, X_, Y_);
+    } else {
+      expm_action(*last_sys_, h, last_entry_->plan, X_, Y_, work1_, work2_);
+    }
     X_.swap(Y_);
     return;
   }
-  auto it = cache_.find(key);
-  if (it != cache_.end() && it->second.P.size() > 0) {
+  const PropagatorKey key{config_, structure_, std::llround(h / instant_)};
+  PropagatorEntry* entry = nullptr;
+  if (last_entry_ && last_key_ == key) {
+    entry = last_entry_;
+  } else {
+    auto it = cache_.find(key);
+    if (it != cache_.end()) entry = &it->second;
+  }
+  if (entry && entry->P.size() > 0) {
     last_key_ = key;
-    last_P_ = &it->second.P;
-    multiply(it->second.P, X_, Y_);
+    last_entry_ = entry;
+    last_h_ = h;
+    last_sys_ = &segment(config_, structure_).sys;
+    multiply(entry->P, X_, Y_);
     X_.swap(Y_);
     return;
   }
   Segment& seg = segment(config_, structure_);
+  if (entry && entry->action) {
+    last_key_ = key;
+    last_entry_ = entry;
+    last_h_ = h;
+    last_sys_ = &seg.sys;
+    expm_action(seg.sys, h, entry->plan, X_, Y_, work1_, work2_);
+    X_.swap(Y_);
+    return;
+  }
   const Eigen::Index N = seg.sys.M.rows();
-  PropagatorEntry& entry = cache_[key];
-  ++entry.uses;
-  const long action = expm_action_cost(seg.sys, h);
-  const bool dense = entry.uses >= kDenseAfterUses ||
-                     static_cast<double>(action) > kActionLimitPerState * static_cast<double>(N);
+  if (!entry) entry = &cache_[key];
+  ++entry->uses;
+  if (entry->plan.m < 0) entry->plan = plan_action(seg.sys, h);
+  const long action = entry->plan.products();
+  const bool stiff = static_cast<double>(action) > kActionLimitPerState * static_cast<double>(N);
+  bool dense = entry->uses >= kDenseAfterUses || stiff;
+  if (dense && !stiff && seg.sys.use_sparse) {
+    // Expected further uses: what the caller says, or as many as so far.
+    const double uses = static_cast<double>(std::max<long>(uses_left, entry->uses));
+    const double n2 = 2.0 * static_cast<double>(N) * static_cast<double>(N);
+    if (uses * action_flops(seg.sys, entry->plan) <
+        dense_propagator_flops(seg.sys, h) + uses * n2) {
+      dense = false;
+      entry->action = true;
+      last_key_ = key;
+      last_entry_ = entry;
+      last_h_ = h;
+      last_sys_ = &seg.sys;
+    }
+  }
   if (dense) {
     const double bytes = 8.0 * static_cast<double>(N * N);
     if (cache_bytes_ + bytes > kCacheBytes) {
-      last_P_ = nullptr;
+      last_entry_ = nullptr;
       cache_.clear();
       cache_bytes_ = 0;
+      entry = &cache_[key];
+      entry->plan = plan_action(seg.sys, h);
     }
     Eigen::MatrixXd P;
     try {
@@ -650,12 +706,11 @@ void Engine::advance(double h) {
     ++sum_.propagators_built;
     if (!P.allFinite())
       throw NumericalFailure("the propagator over " + fmt_num(h, "s") + " is not finite");
-    PropagatorEntry& e2 = cache_[key];
-    e2.P = std::move(P);
+    entry->P = std::move(P);
     cache_bytes_ += bytes;
-    multiply(e2.P, X_, Y_);
+    multiply(entry->P, X_, Y_);
   } else {
-    expm_action(seg.sys, h, X_, Y_, work1_, work2_);
+    expm_action(seg.sys, h, entry->plan, X_, Y_, work1_, work2_);
   }
   X_.swap(Y_);
 }
@@ -871,9 +926,22 @@ void Engine::interval_with_corners(double t, double tn, std::size_t e_begin, std
 void Engine::emit(double t) {
   if (!current_) current_ = &segment(config_, structure_);
   Segment& seg = *current_;
-  base_.noalias() = seg.O * X_;
-  for (std::size_t s = 0; s < programs_.size(); ++s)
-    values_[s] = run_program(programs_[s], base_.data(), stack_.data());
+  if (seg.direct.rows() > 0) {
+    // Each value is one dot product of a contiguous row with X (a handful of states for the
+    // small circuits where this per-sample overhead matters).
+    const Eigen::Index cols = seg.direct.cols();
+    const double* x = X_.data();
+    for (Eigen::Index k = 0; k < seg.direct.rows(); ++k) {
+      const double* row = seg.direct.data() + k * cols;
+      double acc = 0;
+      for (Eigen::Index j = 0; j < cols; ++j) acc += row[j] * x[j];
+      values_[static_cast<std::size_t>(k)] = acc;
+    }
+  } else {
+    base_.noalias() = seg.O * X_;
+    for (std::size_t s = 0; s < programs_.size(); ++s)
+      values_[s] = run_program(programs_[s], base_.data(), stack_.data());
+  }
   for (double v : values_) {
     if (!std::isfinite(v)) {
       const Configuration& cfg = configs_[static_cast<std::size_t>(config_)];
@@ -927,6 +995,13 @@ TransientSummary Engine::run() {
   for (const auto& p : programs_) depth = std::max(depth, p.size());
   stack_.assign(depth, 0.0);
   values_.assign(programs_.size(), 0.0);
+  {
+    bool all_loads = !programs_.empty();
+    for (const auto& p : programs_)
+      all_loads = all_loads && p.size() == 1 && p[0].kind == Instr::Load;
+    if (all_loads)
+      for (const auto& p : programs_) direct_rows_.push_back(p[0].base);
+  }
   base_.resize(static_cast<Eigen::Index>(compiler_.bases.size()));
 
   // Sample grid (NETLIST.md section 7).
@@ -997,7 +1072,7 @@ TransientSummary Engine::run() {
         handle(events[e++]);
         continue;
       }
-      advance(at_sample ? opt_.every : tn - t);
+      advance(at_sample ? opt_.every : tn - t, at_sample ? n_samples - k : 1);
       t = tn;
       ++k;
       while (e < events.size() && events[e].t == tn) handle(events[e++]);
@@ -1030,6 +1105,18 @@ SampledRun run_transient_sampled(const Circuit& circuit, const std::vector<Signa
                                  const TransientOptions& options, Diagnostics& diagnostics) {
   SampledRun out;
   out.values.resize(signals.size());
+  // Reserve the rows up front (N + 1, NETLIST.md section 7, with the same slack as the
+  // engine): growing by reallocation cost about a third of a 1e6-sample run (page faults
+  // and copies). Capped so an absurd request fails in the engine, not here.
+  constexpr double kReserveCap = 1e8;
+  if (options.every > 0 && options.until > 0) {
+    const double ratio = options.until / options.every;
+    const double rows = std::floor(ratio * (1 + kWholeSlack)) + 1;
+    if (std::isfinite(rows) && rows <= kReserveCap) {
+      out.time.reserve(static_cast<std::size_t>(rows));
+      for (auto& v : out.values) v.reserve(static_cast<std::size_t>(rows));
+    }
+  }
   const SampleSink sink = [&out](double t, const double* v, std::size_t n) {
     out.time.push_back(t);
     for (std::size_t i = 0; i < n; ++i) out.values[i].push_back(v[i]);
