@@ -1,7 +1,7 @@
 // ringdown's entry point: only wiring. Each command lives in its own file
 // (an options struct, setup_* binding its flags, run_* doing the work;
 // STYLE.md "CLI"); main registers them, parses, and dispatches.
-// Commands not yet implemented (check, modes, freq, compare) are not registered.
+// Commands not yet implemented (check, compare) are not registered.
 #include <CLI/CLI.hpp>
 #include <exception>
 #include <new>
@@ -12,7 +12,9 @@
 #include "cli/demo.hpp"
 #include "cli/exit_codes.hpp"
 #include "cli/fmt.hpp"
+#include "cli/freq.hpp"
 #include "cli/inspect.hpp"
+#include "cli/modes.hpp"
 #include "cli/run.hpp"
 
 int main(int argc, char** argv) {
@@ -23,18 +25,24 @@ int main(int argc, char** argv) {
   configure_app(app);
   RunOptions run;
   InspectOptions inspect;
+  ModesOptions modes;
   FmtOptions fmt;
+  FreqOptions freq;
   DemoOptions demo;
   CLI::App* run_command = setup_run(app, run);
   CLI::App* inspect_command = setup_inspect(app, inspect);
+  CLI::App* modes_command = setup_modes(app, modes);
   CLI::App* fmt_command = setup_fmt(app, fmt);
+  CLI::App* freq_command = setup_freq(app, freq);
   CLI::App* demo_command = demo_available() ? setup_demo(app, demo) : nullptr;
 
   if (const int code = parse_arguments(app, argc, argv); code >= 0) return code;
   try {
     if (*run_command) return run_run(run);
     if (*inspect_command) return run_inspect(inspect);
+    if (*modes_command) return run_modes(modes);
     if (*fmt_command) return run_fmt(fmt);
+    if (*freq_command) return run_freq(freq);
     if (demo_command && *demo_command) return run_demo(demo);
   } catch (const std::bad_alloc&) {
     print_error("out of memory", "a smaller --until or a larger --every needs less");
