@@ -24,6 +24,7 @@
 #include "cli/console.hpp"
 #include "cli/csv_writer.hpp"
 #include "cli/exit_codes.hpp"
+#include "cli/modes.hpp"
 #include "cli/plot.hpp"
 #include "cli/progress.hpp"
 #include "cli/quantity.hpp"
@@ -131,11 +132,6 @@ Diagnostics not_run_notes(const Circuit& c) {
     notes.push_back(d);
   };
   if (c.frequency) note(c.frequency->where, "the frequency analysis is not run by this version");
-  if (c.modes) {
-    SourcePosition file;
-    file.file = c.file;
-    note(file, "the modes analysis is not run by this version");
-  }
   if (!c.sweeps.empty())
     note(c.sweeps.front().where, "sweeps are not run by this version; the file's values are used");
   if (c.trials) note(c.trials->where, "trials are not run by this version");
@@ -422,6 +418,17 @@ int run_loaded(const RunOptions& options, const Loader& load) {
     // With the CSV on stdout the summary moves to stderr, so the CSV stays clean.
     print_summary(csv_to_stdout ? stderr : stdout, circuit, *plan, rows, summary, warning_count,
                   options.csv, options);
+  }
+  // A `modes` statement: the natural modes table after the summary
+  // (the same table as `ringdown modes`).
+  if (circuit.modes && !options.quiet) {
+    solver::ModesOptions modes_options;
+    modes_options.strict = options.strict;
+    Diagnostics modes_diagnostics;
+    const solver::ModesResult modes = solver::compute_modes(circuit, modes_options, modes_diagnostics);
+    std::FILE* out = csv_to_stdout ? stderr : stdout;
+    if (modes.ok) std::fprintf(out, "\n%s", format_modes(circuit, modes).c_str());
+    for (const Diagnostic& d : modes_diagnostics) warnings.push_back(d);
   }
   int status = kExitOk;
   if (plot_data) {

@@ -145,3 +145,20 @@ TEST_F(ModesCli, BadInputExitsTwo) {
 }
 
 }  // namespace
+
+namespace {
+
+// A `modes` statement makes `run` print the same table after its summary
+// (CLI.md: run executes the analyses the file names). The pole is checked
+// against the series RLC closed form wd = sqrt(1/(LC) - (R/2L)^2) (Nilsson &
+// Riedel, Electric Circuits; from memory): R = 10, L = 1 mH, C = 1 uF gives
+// wd / (2 pi) = sqrt(1e9 - 2.5e7) / (2 pi) = 4.970 kHz.
+TEST_F(ModesCli, RunPrintsTheModesOfAFileThatAsksForThem) {
+  const ProcessResult r = run_ringdown({"run", write("rlc.rlc", kSeriesRlc), "--no-progress"});
+  ASSERT_EQ(r.exit_code, kOk) << r.err;
+  EXPECT_NE(r.out.find("Natural modes"), std::string::npos) << r.out;
+  EXPECT_NE(r.out.find("4.97 kHz"), std::string::npos) << r.out;
+  EXPECT_EQ(r.err.find("modes analysis is not run"), std::string::npos) << r.err;
+}
+
+}  // namespace
