@@ -1,5 +1,8 @@
 // Printing of diagnostics to stderr; see console.hpp.
 #include "cli/console.hpp"
+#include <cerrno>
+#include <cstring>
+#include <fstream>
 
 #include <cstdio>
 
@@ -54,6 +57,13 @@ void print_error(const std::string& message, const std::string& hint) {
 
 void print_warning(const std::string& message, const std::string& hint) {
   emit(command_line_diagnostic(Severity::Warning, message, hint));
+}
+
+bool readable_or_report(const std::string& path) {
+  std::ifstream probe(path);
+  if (probe) return true;
+  print_error("cannot read '" + path + "': " + std::strerror(errno));
+  return false;
 }
 
 }  // namespace ringdown::cli

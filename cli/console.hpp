@@ -24,6 +24,10 @@ DiagnosticCounts print_diagnostics(const Diagnostics& diagnostics, bool strict =
 void print_error(const std::string& message, const std::string& hint = {});
 void print_warning(const std::string& message, const std::string& hint = {});
 
+// True when `path` can be opened for reading; otherwise prints
+// "cannot read 'PATH': REASON" and returns false (the command exits 2).
+bool readable_or_report(const std::string& path);
+
 // Builds the Diagnostic that print_error prints (so tests and callers can
 // collect command-line problems as values too).
 Diagnostic command_line_diagnostic(Severity severity, const std::string& message,

@@ -191,13 +191,7 @@ CLI::App* setup_freq(CLI::App& app, FreqOptions& o) {
 }
 
 int run_freq(const FreqOptions& o) {
-  {
-    std::ifstream probe(o.file);
-    if (!probe) {
-      print_error("cannot read '" + o.file + "': " + std::strerror(errno));
-      return kExitBadInput;
-    }
-  }
+  if (!readable_or_report(o.file)) return kExitBadInput;
   if (o.digits < 1 || o.digits > kMaxDigits) {
     print_error("--digits takes a whole number from 1 to 17, got " + std::to_string(o.digits));
     return kExitBadInput;

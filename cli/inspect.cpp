@@ -306,13 +306,7 @@ CLI::App* setup_inspect(CLI::App& app, InspectOptions& options) {
 }
 
 int run_inspect(const InspectOptions& options) {
-  {
-    std::ifstream probe(options.file);
-    if (!probe) {
-      print_error("cannot read '" + options.file + "': " + std::strerror(errno));
-      return kExitBadInput;
-    }
-  }
+  if (!readable_or_report(options.file)) return kExitBadInput;
   const LoadResult loaded = load_file(options.file);
   if (!loaded.ok()) {
     print_diagnostics(loaded.diagnostics);

@@ -181,13 +181,7 @@ CLI::App* setup_modes(CLI::App& app, ModesOptions& options) {
 }
 
 int run_modes(const ModesOptions& options) {
-  {
-    std::ifstream probe(options.file);
-    if (!probe) {
-      print_error("cannot read '" + options.file + "': " + std::strerror(errno));
-      return kExitBadInput;
-    }
-  }
+  if (!readable_or_report(options.file)) return kExitBadInput;
   LoadOptions load_options;
   for (const std::string& entry : options.set) {
     const auto eq = entry.find('=');

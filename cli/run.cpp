@@ -238,13 +238,7 @@ CLI::App* setup_run(CLI::App& app, RunOptions& o) {
 }
 
 int run_run(const RunOptions& options) {
-  {
-    std::ifstream probe(options.file);
-    if (!probe) {
-      print_error("cannot read '" + options.file + "': " + std::strerror(errno));
-      return kExitBadInput;
-    }
-  }
+  if (!readable_or_report(options.file)) return kExitBadInput;
   const std::string file = options.file;
   return run_loaded(options, [file](const LoadOptions& load) { return load_file(file, load); });
 }

@@ -9,6 +9,8 @@
 // UTF-8 continuation byte takes no column of its own (so `Ω` is one column).
 #include "parser/diagnostic.hpp"
 
+#include <utility>
+
 #include <algorithm>
 #include <string>
 #include <vector>
@@ -87,6 +89,16 @@ std::string printable(const std::string& text) {
 bool has_errors(const Diagnostics& diagnostics) {
   return std::any_of(diagnostics.begin(), diagnostics.end(),
                      [](const Diagnostic& d) { return d.severity == Severity::Error; });
+}
+
+Diagnostic make_diagnostic(Severity severity, const SourcePosition& where, std::string message,
+                           std::string hint) {
+  Diagnostic d;
+  d.severity = severity;
+  d.where = where;
+  d.message = std::move(message);
+  d.hint = std::move(hint);
+  return d;
 }
 
 std::string render(const Diagnostic& diagnostic) {

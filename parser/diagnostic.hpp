@@ -37,6 +37,9 @@ using Diagnostics = std::vector<Diagnostic>;
 
 bool has_errors(const Diagnostics& diagnostics);
 
+Diagnostic make_diagnostic(Severity severity, const SourcePosition& where, std::string message,
+                           std::string hint = {});
+
 // Compiler-style text of one diagnostic (several lines, ends with '\n').
 // Tabs in the source line are expanded to 8 columns; the caret follows.
 std::string render(const Diagnostic& diagnostic);

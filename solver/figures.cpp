@@ -22,6 +22,8 @@
 // the modes), and anything about printing.
 #include "solver/figures.hpp"
 
+#include "solver/golden_section.hpp"
+
 #include <algorithm>
 #include <cmath>
 #include <functional>
@@ -151,25 +153,7 @@ double brent_zero(const std::function<double(double)>& f, double a, double b, do
 
 // Golden-section search for the maximum of g on [lo, hi].
 double golden_max(const std::function<double(double)>& g, double lo, double hi, double tol) {
-  const double r = (std::sqrt(5.0) - 1) / 2;  // 1/phi
-  double x1 = hi - r * (hi - lo), x2 = lo + r * (hi - lo);
-  double g1 = g(x1), g2 = g(x2);
-  for (int iter = 0; iter < kMaxIterations && hi - lo > tol; ++iter) {
-    if (g1 >= g2) {
-      hi = x2;
-      x2 = x1;
-      g2 = g1;
-      x1 = hi - r * (hi - lo);
-      g1 = g(x1);
-    } else {
-      lo = x1;
-      x1 = x2;
-      g1 = g2;
-      x2 = lo + r * (hi - lo);
-      g2 = g(x2);
-    }
-  }
-  return std::max(g1, g2);
+  return golden_section_max(g, lo, hi, tol, kMaxIterations).best;
 }
 
 struct Node {

@@ -5,6 +5,8 @@
 // (NETLIST.md section 7, "Figures": computed on the exact solution).
 #include "solver/frequency.hpp"
 
+#include "solver/golden_section.hpp"
+
 #include <algorithm>
 #include <cmath>
 #include <limits>
@@ -33,18 +35,7 @@ constexpr double kLogBracket = 1e-12;
 // golden steps to reach kLogBracket).
 constexpr int kMaxBisections = 200;
 constexpr int kMaxGoldenSteps = 200;
-// 1 / golden ratio (Kiefer 1953, golden-section search).
-const double kInvPhi = (std::sqrt(5.0) - 1.0) / 2.0;
 
-Diagnostic diag(Severity severity, const SourcePosition& where, std::string message,
-                std::string hint = {}) {
-  Diagnostic d;
-  d.severity = severity;
-  d.where = where;
-  d.message = std::move(message);
-  d.hint = std::move(hint);
-  return d;
-}
 
 double to_db(std::complex<double> h) {
   const double m = std::abs(h);
@@ -241,25 +232,9 @@ std::pair<double, double> golden_peak(const FrequencyResponse& r, std::size_t k,
   auto gain = [&](double lf) {
     return r.at(std::pow(10.0, lf), h) ? to_db(h[k]) : -std::numeric_limits<double>::infinity();
   };
-  double a = std::log10(lo), b = std::log10(hi);
-  double x1 = b - kInvPhi * (b - a), x2 = a + kInvPhi * (b - a);
-  double g1 = gain(x1), g2 = gain(x2);
-  for (int i = 0; i < kMaxGoldenSteps && b - a > kLogBracket; ++i) {
-    if (g1 >= g2) {
-      b = x2;
-      x2 = x1;
-      g2 = g1;
-      x1 = b - kInvPhi * (b - a);
-      g1 = gain(x1);
-    } else {
-      a = x1;
-      x1 = x2;
-      g1 = g2;
-      x2 = a + kInvPhi * (b - a);
-      g2 = gain(x2);
-    }
-  }
-  const double lf = 0.5 * (a + b);
+  const GoldenSectionResult bracket =
+      golden_section_max(gain, std::log10(lo), std::log10(hi), kLogBracket, kMaxGoldenSteps);
+  const double lf = 0.5 * (bracket.lo + bracket.hi);
   return {std::pow(10.0, lf), gain(lf)};
 }
 
@@ -305,7 +280,7 @@ std::optional<FrequencyResponse> FrequencyResponse::build(const Circuit& circuit
   if (input_part < 0 || input_part >= static_cast<int>(circuit.parts.size()) ||
       (circuit.parts[static_cast<std::size_t>(input_part)].kind != ElementKind::VoltageSource &&
        circuit.parts[static_cast<std::size_t>(input_part)].kind != ElementKind::CurrentSource)) {
-    diagnostics.push_back(diag(Severity::Error, where,
+    diagnostics.push_back(make_diagnostic(Severity::Error, where,
                                "frequency: the input must be a voltage or current source",
                                "name one with input= or --input"));
     return std::nullopt;
@@ -316,7 +291,7 @@ std::optional<FrequencyResponse> FrequencyResponse::build(const Circuit& circuit
   const auto& inputs = net->input_elements();
   const auto it = std::find(inputs.begin(), inputs.end(), main);
   if (it == inputs.end()) {
-    diagnostics.push_back(diag(Severity::Error, where,
+    diagnostics.push_back(make_diagnostic(Severity::Error, where,
                                "frequency: " + circuit.parts[static_cast<std::size_t>(input_part)].name +
                                    " is not an input of the network"));
     return std::nullopt;
@@ -339,7 +314,7 @@ std::optional<FrequencyResponse> FrequencyResponse::build(const Circuit& circuit
     std::string error;
     const std::optional<Linear> lin = compiler.compile(sig.expr, error);
     if (!lin) {
-      diagnostics.push_back(diag(Severity::Error, sig.where.line > 0 ? sig.where : where,
+      diagnostics.push_back(make_diagnostic(Severity::Error, sig.where.line > 0 ? sig.where : where,
                                  "frequency: cannot record '" + sig.name + "': " + error,
                                  "record voltages and currents (X.v, X.i) for a frequency response; "
                                  "powers belong to the transient analysis"));
@@ -378,7 +353,7 @@ FrequencyResult run_frequency(const Circuit& circuit, const std::vector<Signal>&
   FrequencyResult result;
   const SourcePosition where = position_of(circuit);
   if (!(o.from > 0) || !(o.to > o.from) || !std::isfinite(o.to) || o.per_decade < 1) {
-    diagnostics.push_back(diag(Severity::Error, where,
+    diagnostics.push_back(make_diagnostic(Severity::Error, where,
                                "frequency: needs 0 < from < to and per_decade >= 1 (from = " +
                                    format_si(o.from, "Hz") + ", to = " + format_si(o.to, "Hz") + ")"));
     result.status = Status::BadInput;
@@ -401,7 +376,7 @@ FrequencyResult run_frequency(const Circuit& circuit, const std::vector<Signal>&
   std::vector<std::complex<double>> h;
   for (std::size_t i = 0; i < np; ++i) {
     if (!response->at(result.freq[i], h)) {
-      diagnostics.push_back(diag(
+      diagnostics.push_back(make_diagnostic(
           Severity::Error, where,
           "frequency: the network is singular at " + format_si(result.freq[i], "Hz", 8) +
               " (a lossless resonance exactly on a sweep point, or a part without a path)",

@@ -203,23 +203,13 @@ ModesResult compute_modes(const Circuit& circuit, const ModesOptions& options,
   if (!analysed) return out;
   const mna::Network& net = *analysed;
 
-  // The structure the transient engine builds (transient.cpp,
-  // build_structure): zero capacitances carry no state.
-  DifferentialStructure structure;
-  std::vector<int> cap_element;    // per capacitor branch
+  // The same states as the transient engine.
+  StateElements states = state_elements(circuit, net);
+  const DifferentialStructure& structure = states.structure;
+  const std::vector<int>& cap_element = states.capacitor_elements;  // per capacitor branch
   std::map<int, int> inductor_of;  // branch unknown -> element
-  for (std::size_t e = 0; e < circuit.elements.size(); ++e) {
-    const Element& el = circuit.elements[e];
-    if (el.kind == ElementKind::Capacitor && el.value != 0) {
-      structure.capacitor_branches.emplace_back(net.node_unknown(el.a), net.node_unknown(el.b));
-      structure.capacitances.push_back(el.value);
-      cap_element.push_back(static_cast<int>(e));
-    } else if (el.kind == ElementKind::Inductor) {
-      const int u = net.branch_unknown(static_cast<int>(e));
-      structure.inductor_unknowns.push_back(u);
-      inductor_of[u] = static_cast<int>(e);
-    }
-  }
+  for (std::size_t k = 0; k < structure.inductor_unknowns.size(); ++k)
+    inductor_of[structure.inductor_unknowns[k]] = states.inductor_elements[k];
 
   // Switch configurations in the order the run meets them.
   const std::vector<int>& switch_elements = net.switches();

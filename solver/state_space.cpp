@@ -399,4 +399,21 @@ ReductionResult reduce(const mna::Descriptor& descriptor, const StatePartition& 
   return out;
 }
 
+StateElements state_elements(const Circuit& circuit, const mna::Network& network) {
+  StateElements out;
+  for (std::size_t e = 0; e < circuit.elements.size(); ++e) {
+    const Element& el = circuit.elements[e];
+    if (el.kind == ElementKind::Capacitor && el.value != 0) {
+      out.structure.capacitor_branches.emplace_back(network.node_unknown(el.a),
+                                                    network.node_unknown(el.b));
+      out.structure.capacitances.push_back(el.value);
+      out.capacitor_elements.push_back(static_cast<int>(e));
+    } else if (el.kind == ElementKind::Inductor) {
+      out.structure.inductor_unknowns.push_back(network.branch_unknown(static_cast<int>(e)));
+      out.inductor_elements.push_back(static_cast<int>(e));
+    }
+  }
+  return out;
+}
+
 }  // namespace ringdown::solver

@@ -42,6 +42,17 @@ struct DifferentialStructure {
   std::vector<int> inductor_unknowns;
 };
 
+// The differential structure of a circuit, with the element behind each
+// capacitor branch and each inductance current. Zero capacitances carry no
+// state. Shared by the transient engine and the modes analysis so that both
+// see the same states.
+struct StateElements {
+  DifferentialStructure structure;
+  std::vector<int> capacitor_elements;  // element index per capacitor branch
+  std::vector<int> inductor_elements;   // element index per inductor unknown
+};
+StateElements state_elements(const Circuit& circuit, const mna::Network& network);
+
 // The change of coordinates x = V1 x_d + V2 x_a fixed by the structure.
 // The capacitor states are the branch voltages of a spanning forest of the
 // capacitor graph (largest capacitances first, Kruskal 1956): with them the

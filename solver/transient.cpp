@@ -64,15 +64,6 @@ constexpr double kGrowthRelative = 1e-9;
 // Progress callbacks per run.
 constexpr long kProgressCalls = 100;
 
-Diagnostic diag(Severity severity, const SourcePosition& where, std::string message,
-                std::string hint = {}) {
-  Diagnostic d;
-  d.severity = severity;
-  d.where = where;
-  d.message = std::move(message);
-  d.hint = std::move(hint);
-  return d;
-}
 
 std::string fmt_num(double v, const char* unit) { return format_si(v, unit); }
 
@@ -321,7 +312,7 @@ bool Engine::check_inputs() {
   for (const Element& e : c_.elements) {
     const bool source = e.kind == ElementKind::VoltageSource || e.kind == ElementKind::CurrentSource;
     if ((source || e.kind == ElementKind::Switch) && e.waveform && !e.waveform->is_exact()) {
-      diags_.push_back(diag(Severity::Error, e.where,
+      diags_.push_back(make_diagnostic(Severity::Error, e.where,
                             "formula() sources are not supported by the transient engine yet",
                             "write the waveform with step, pulse, sine, approach or points"));
       ok = false;
@@ -345,16 +336,9 @@ std::string Engine::unknown_label(int u) const {
 
 bool Engine::build_structure() {
   const mna::Network& net = *net_;
-  for (std::size_t e = 0; e < c_.elements.size(); ++e) {
-    const Element& el = c_.elements[e];
-    if (el.kind == ElementKind::Capacitor && el.value != 0) {
-      topology_.capacitor_branches.emplace_back(net.node_unknown(el.a), net.node_unknown(el.b));
-      topology_.capacitances.push_back(el.value);
-      cap_elements_.push_back(static_cast<int>(e));
-    } else if (el.kind == ElementKind::Inductor) {
-      topology_.inductor_unknowns.push_back(net.branch_unknown(static_cast<int>(e)));
-    }
-  }
+  StateElements states = state_elements(c_, net);
+  topology_ = std::move(states.structure);
+  cap_elements_ = std::move(states.capacitor_elements);
   for (int e : net.input_elements())
     inputs_.push_back(c_.elements[static_cast<std::size_t>(e)].waveform);
   for (int e : net.switches()) gates_.push_back(c_.elements[static_cast<std::size_t>(e)].waveform);
@@ -377,7 +361,7 @@ int Engine::config_for(const mna::SwitchState& closed) {
     if (!names.empty()) msg += " (unknowns " + join_names(names) + ")";
     if (red.condition > 0 && std::isfinite(red.condition))
       msg += "; condition estimate " + fmt_num(red.condition, "");
-    diags_.push_back(diag(Severity::Error, run_where(), msg,
+    diags_.push_back(make_diagnostic(Severity::Error, run_where(), msg,
                           "a node reached only through inductors needs a resistor to the rest of "
                           "the network (rpar= on an inductor)"));
     sum_.status = Status::BadInput;
@@ -459,7 +443,7 @@ void Engine::check_stability(int config) {
   const SourcePosition& where =
       negative_resistor_ >= 0 ? c_.elements[static_cast<std::size_t>(negative_resistor_)].where
                               : run_where();
-  diags_.push_back(diag(Severity::Warning, where, msg));
+  diags_.push_back(make_diagnostic(Severity::Warning, where, msg));
 }
 
 bool Engine::initial_state() {
@@ -516,13 +500,13 @@ bool Engine::initial_state() {
                             ? "the DC operating point could not be computed (condition estimate " +
                                   fmt_num(s.condition, "") + ")"
                             : "the initial holds contradict the network at DC: " + join_names(names);
-      diags_.push_back(diag(Severity::Error, run_where(), msg,
+      diags_.push_back(make_diagnostic(Severity::Error, run_where(), msg,
                             "change v0/i0 so they agree, or use `initial=zero`"));
       sum_.status = Status::BadInput;
       return false;
     }
     if (s.singular) {
-      diags_.push_back(diag(Severity::Note, run_where(),
+      diags_.push_back(make_diagnostic(Severity::Note, run_where(),
                             "the DC operating point leaves a circulating current (a loop of "
                             "inductances) undetermined; it starts with no circulating flux"));
     }
@@ -534,7 +518,7 @@ bool Engine::initial_state() {
       std::vector<std::string> names;
       for (int e : conflict)
         if (e >= 0) names.push_back(element_label(c_, e));
-      diags_.push_back(diag(Severity::Error, run_where(),
+      diags_.push_back(make_diagnostic(Severity::Error, run_where(),
                             "contradictory initial voltages: " + join_names(names) +
                                 " are held at different voltages across the same nodes",
                             "give them the same v0, or drop one"));
@@ -964,7 +948,7 @@ TransientSummary Engine::run() {
   };
   if (!(opt_.until > 0) || !(opt_.every > 0) || !std::isfinite(opt_.until) ||
       !std::isfinite(opt_.every)) {
-    diags_.push_back(diag(Severity::Error, run_where(),
+    diags_.push_back(make_diagnostic(Severity::Error, run_where(),
                           "the transient needs until > 0 and every > 0 (got until=" +
                               fmt_num(opt_.until, "s") + ", every=" + fmt_num(opt_.every, "s") + ")"));
     sum_.status = Status::BadInput;
@@ -984,8 +968,9 @@ TransientSummary Engine::run() {
     std::vector<Instr> code;
     std::string error;
     if (!compiler_.compile(s.expr, code, error)) {
-      diags_.push_back(diag(Severity::Error, s.where, "cannot evaluate signal " + s.name +
-                                                          (error.empty() ? "" : ": " + error)));
+      diags_.push_back(make_diagnostic(
+          Severity::Error, s.where,
+          "cannot evaluate signal " + s.name + (error.empty() ? "" : ": " + error)));
       sum_.status = Status::BadInput;
       return finish();
     }
@@ -1012,7 +997,7 @@ TransientSummary Engine::run() {
     n_samples = static_cast<long>(whole);
   } else {
     n_samples = static_cast<long>(std::floor(ratio));
-    diags_.push_back(diag(Severity::Warning, run_where(),
+    diags_.push_back(make_diagnostic(Severity::Warning, run_where(),
                           "until/every = " + std::to_string(ratio) +
                               " is not a whole number: the last sample is at " +
                               fmt_num(static_cast<double>(n_samples) * opt_.every, "s")));
@@ -1084,7 +1069,7 @@ TransientSummary Engine::run() {
     if (std::string(ex.what()).empty()) {
       if (sum_.status == Status::Ok) sum_.status = Status::BadInput;
     } else {
-      diags_.push_back(diag(Severity::Error, run_where(), ex.what(),
+      diags_.push_back(make_diagnostic(Severity::Error, run_where(), ex.what(),
                             "check for a negative resistance or an extreme element value"));
       sum_.status = Status::Numerical;
     }
