@@ -7,12 +7,14 @@
 
 #include <cstddef>
 #include <functional>
+#include <memory>
 #include <optional>
 #include <string>
 #include <vector>
 
 #include "parser/circuit.hpp"
 #include "parser/diagnostic.hpp"
+#include "solver/trajectory.hpp"
 
 namespace ringdown::solver {
 
@@ -21,6 +23,16 @@ struct TransientOptions {
   double every = 0;         // output step H, s (> 0); N = round(until/every) per NETLIST.md
   bool initial_dc = true;   // false: initial=zero
   bool strict = false;      // topology warnings become errors
+  // Keep the exact solution for figures (report/expect, rated=, safety): the summary's
+  // `trajectory` then answers any signal at any instant (ARCHITECTURE.md "Dense output").
+  bool dense_output = false;
+  // Signals the trajectory holds besides the streamed ones (figure arguments that are not
+  // recorded, X.v and X.i of energy(X), node voltages for the safety screen). They are not
+  // sent to the sink; in the trajectory they follow the streamed signals, in this order.
+  std::vector<Signal> trajectory_signals;
+  // formula() sources: target of the estimated fit error, relative to each source's peak
+  // (CLI --tol).
+  double formula_tolerance = 1e-9;
   // Called now and then with the fraction done (0..1); may be empty.
   std::function<void(double fraction)> progress;
 };
@@ -50,6 +62,13 @@ struct TransientSummary {
   std::size_t switch_events = 0;
   std::size_t propagators_built = 0; // dense expm evaluations (cache misses)
   double seconds = 0;                // wall time of the engine
+  // With options.dense_output and status Ok: the exact solution, signals indexed as the
+  // streamed ones followed by options.trajectory_signals. Holds what it needs (it outlives
+  // the engine and the circuit).
+  std::shared_ptr<const Trajectory> trajectory;
+  // formula() sources: the largest estimated fit error, relative to the source's peak
+  // (0 when the circuit has none).
+  double formula_error = 0;
 };
 
 // Runs the circuit's transient analysis for `signals` (usually circuit.records).
