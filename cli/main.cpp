@@ -1,7 +1,7 @@
 // ringdown's entry point: only wiring. Each command lives in its own file
 // (an options struct, setup_* binding its flags, run_* doing the work;
 // STYLE.md "CLI"); main registers them, parses, and dispatches.
-// Commands not yet implemented (check, compare) are not registered.
+// Commands not yet implemented (compare) are not registered.
 #include <CLI/CLI.hpp>
 #include <exception>
 #include <new>
@@ -24,12 +24,14 @@ int main(int argc, char** argv) {
   CLI::App app{"ringdown: exact transient simulation of linear RLC circuits", "ringdown"};
   configure_app(app);
   RunOptions run;
+  CheckOptions check;
   InspectOptions inspect;
   ModesOptions modes;
   FmtOptions fmt;
   FreqOptions freq;
   DemoOptions demo;
   CLI::App* run_command = setup_run(app, run);
+  CLI::App* check_command = setup_check(app, check);
   CLI::App* inspect_command = setup_inspect(app, inspect);
   CLI::App* modes_command = setup_modes(app, modes);
   CLI::App* fmt_command = setup_fmt(app, fmt);
@@ -39,6 +41,7 @@ int main(int argc, char** argv) {
   if (const int code = parse_arguments(app, argc, argv); code >= 0) return code;
   try {
     if (*run_command) return run_run(run);
+    if (*check_command) return run_check(check);
     if (*inspect_command) return run_inspect(inspect);
     if (*modes_command) return run_modes(modes);
     if (*fmt_command) return run_fmt(fmt);

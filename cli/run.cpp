@@ -10,6 +10,7 @@
 
 #include <CLI/CLI.hpp>
 #include <algorithm>
+#include <chrono>
 #include <cerrno>
 #include <cmath>
 #include <cstring>
@@ -23,11 +24,13 @@
 #include "cli/atomic_file.hpp"
 #include "cli/console.hpp"
 #include "cli/csv_writer.hpp"
+#include "cli/evaluation.hpp"
 #include "cli/exit_codes.hpp"
 #include "cli/modes.hpp"
 #include "cli/plot.hpp"
 #include "cli/progress.hpp"
 #include "cli/quantity.hpp"
+#include "cli/report.hpp"
 #include "parser/units.hpp"
 #include "solver/transient.hpp"
 
@@ -178,9 +181,8 @@ void print_summary(std::FILE* out, const Circuit& circuit, const TransientPlan& 
   }
   if (!csv.empty()) std::fprintf(out, "  csv          %s\n", csv == "-" ? "stdout" : csv.c_str());
   if (!options.plot.empty()) std::fprintf(out, "  plot         %s\n", options.plot.c_str());
-  if (!circuit.reports.empty() || !circuit.expects.empty())
-    std::fprintf(out, "  figures      %zu report(s), %zu expect(s): not evaluated by this version\n",
-                 circuit.reports.size(), circuit.expects.size());
+  if (summary.formula_error > 0)
+    std::fprintf(out, "  formula fit  %.2g of the sources' peak (estimated)\n", summary.formula_error);
   std::fprintf(out, "  warnings     %d%s\n", warnings, warnings ? " (on stderr)" : "");
   std::fflush(out);
 }
@@ -205,10 +207,10 @@ std::vector<std::string> split_signal_list(const std::string& text) {
   return out;
 }
 
-CLI::App* setup_run(CLI::App& app, RunOptions& o) {
-  CLI::App* cmd = app.add_subcommand(
-      "run", "Run the transient analysis of a circuit file and print the summary");
-  cmd->add_option("FILE", o.file, "circuit file (.rlc)")->required();
+namespace {
+
+// Flags shared by run and check (CLI.md "Options shared by run, check, compare, freq").
+void add_shared_flags(CLI::App* cmd, RunOptions& o) {
   cmd->add_option("--set", o.set, "override a parameter (repeatable)")
       ->type_name("NAME=VALUE")
       ->allow_extra_args(false);
@@ -217,33 +219,111 @@ CLI::App* setup_run(CLI::App& app, RunOptions& o) {
   cmd->add_option("--record", o.record, "signals to keep, replacing the file's record list")
       ->type_name("S,S,...")
       ->allow_extra_args(false);
-  cmd->add_option("--csv", o.csv, "write the recorded signals as CSV ('-': stdout)")
-      ->type_name("PATH");
-  cmd->add_option("--digits", o.digits, "significant digits in the CSV (default 12)")
-      ->type_name("N")
-      ->check([](const std::string& text) -> std::string {
-        try {
-          const int n = std::stoi(text);
-          if (n >= 1 && n <= kMaxDigits) return {};
-        } catch (const std::exception&) {
-        }
-        return "takes a whole number from 1 to 17, got '" + text + "'";
-      });
-  cmd->add_option("--plot", o.plot, "plot the recorded signals: term, or PATH.png|.svg|.pdf")
-      ->type_name("TARGET");
+  cmd->add_option("--json", o.json, "write the summary as JSON")->type_name("PATH");
+  cmd->add_option("--tol", o.tol, "formula() sources: fit tolerance relative to the source's peak (default 1e-9)")
+      ->type_name("TOL");
+  cmd->add_option("--elv", o.elv, "the extra-low-voltage band of the safety caution (default 50V,120V)")
+      ->type_name("AC_RMS,DC");
+  cmd->add_flag("--accept-mains-risk", o.accept_mains_risk,
+                "silence the mains caution on the console (still recorded in JSON)");
   cmd->add_flag("--quiet", o.quiet, "print no summary and no progress");
   cmd->add_flag("--no-progress", o.no_progress, "no progress bar");
   cmd->add_flag("--strict", o.strict, "treat warnings as errors (exit 2)");
-  return cmd;
 }
 
-int run_run(const RunOptions& options) {
-  if (!readable_or_report(options.file)) return kExitBadInput;
-  const std::string file = options.file;
-  return run_loaded(options, [file](const LoadOptions& load) { return load_file(file, load); });
+enum class Mode { Run, Check };
+
+// What one file's run leaves for the JSON and JUnit writers.
+struct FileOutcome {
+  int exit_code = kExitOk;
+  int failed_expects = 0;
+  nlohmann::json json;
+  JUnitSuite junit;
+};
+
+std::string position_of(const SourcePosition& w) {
+  if (w.line <= 0) return w.file;
+  return w.file + ":" + std::to_string(w.line) + ":" + std::to_string(w.column);
 }
 
-int run_loaded(const RunOptions& options, const Loader& load) {
+// --elv AC_RMS,DC
+bool parse_elv(const std::string& text, SafetyOptions& safety) {
+  const std::vector<std::string> parts = split_signal_list(text);
+  if (parts.size() != 2) {
+    print_error("--elv takes AC_RMS,DC, got '" + text + "'", "for example --elv 25V,60V");
+    return false;
+  }
+  double* out[] = {&safety.ac_rms, &safety.dc};
+  for (int i = 0; i < 2; ++i) {
+    const QuantityResult q = parse_quantity(parts[static_cast<std::size_t>(i)], "V");
+    if (!q.value) {
+      print_error("--elv: " + q.error, q.hint);
+      return false;
+    }
+    if (!(*q.value > 0)) {
+      print_error("--elv: the band must be above 0 V, got '" + parts[static_cast<std::size_t>(i)] + "'");
+      return false;
+    }
+    *out[i] = *q.value;
+  }
+  return true;
+}
+
+bool parse_tol(const std::string& text, double& tol) {
+  const QuantityResult q = parse_quantity(text, "");
+  if (!q.value || !(*q.value > 0) || !(*q.value < 1)) {
+    print_error("--tol takes a relative tolerance between 0 and 1, got '" + text + "'",
+                "for example --tol 1e-6 or --tol 0.01%");
+    return false;
+  }
+  tol = *q.value;
+  return true;
+}
+
+bool write_json_file(const std::string& path, const nlohmann::json& j) {
+  AtomicFile file(path);
+  if (!file.ok()) {
+    print_error(file.error());
+    return false;
+  }
+  const std::string text = j.dump(2) + "\n";
+  if (std::fwrite(text.data(), 1, text.size(), file.stream()) != text.size()) {
+    print_error("cannot write '" + path + "': " + std::strerror(errno));
+    return false;
+  }
+  if (!file.commit()) {
+    print_error(file.error());
+    return false;
+  }
+  return true;
+}
+
+FileOutcome execute(const RunOptions& options, const Loader& load, Mode mode) {
+  FileOutcome out;
+  const auto started = std::chrono::steady_clock::now();
+  const auto elapsed = [&]() {
+    return std::chrono::duration<double>(std::chrono::steady_clock::now() - started).count();
+  };
+  out.json["file"] = options.file;
+  out.junit.name = options.file;
+  // A file that cannot be run is one JUnit error case and a JSON error entry.
+  const auto refuse = [&](int code, const Diagnostics& diagnostics, const std::string& why) {
+    out.exit_code = code;
+    out.json["exit_code"] = code;
+    out.json["diagnostics"] = diagnostics_json(diagnostics);
+    JUnitCase c;
+    c.name = "run " + options.file;
+    c.classname = options.file;
+    c.error = true;
+    c.message = why;
+    for (const Diagnostic& d : diagnostics) c.detail += render(d);
+    c.seconds = elapsed();
+    out.junit.cases.push_back(c);
+    out.junit.seconds = c.seconds;
+    return out;
+  };
+  const bool run_mode = mode == Mode::Run;
+
   // --- Flags that need no circuit --------------------------------------------
   std::optional<PlotTarget> plot_target;
   if (!options.plot.empty()) {
@@ -251,29 +331,35 @@ int run_loaded(const RunOptions& options, const Loader& load) {
     plot_target = parse_plot_target(options.plot, error);
     if (!plot_target) {
       print_error(error);
-      return kExitBadInput;
+      return refuse(kExitBadInput, {}, error);
     }
     if (plot_target->kind == PlotTarget::Kind::Terminal && options.csv == "-") {
       print_error("--csv - and --plot term would both write to stdout",
                   "write the CSV to a file, or plot to a .png/.svg/.pdf file");
-      return kExitBadInput;
+      return refuse(kExitBadInput, {}, "--csv - and --plot term");
     }
     if (!gnuplot_available()) {
       print_error("--plot needs gnuplot, which is not on PATH", "install the Debian package gnuplot-nox");
-      return kExitBadInput;
+      return refuse(kExitBadInput, {}, "gnuplot missing");
     }
   }
   if (options.digits < 1 || options.digits > kMaxDigits) {
     print_error("--digits takes a whole number from 1 to 17, got " + std::to_string(options.digits));
-    return kExitBadInput;
+    return refuse(kExitBadInput, {}, "bad --digits");
   }
+  SafetyOptions safety;
+  safety.accept_risk = options.accept_mains_risk;
+  if (!options.elv.empty() && !parse_elv(options.elv, safety)) return refuse(kExitBadInput, {}, "bad --elv");
+  double formula_tolerance = 1e-9;
+  if (!options.tol.empty() && !parse_tol(options.tol, formula_tolerance))
+    return refuse(kExitBadInput, {}, "bad --tol");
   LoadOptions load_options;
   for (const std::string& entry : options.set) {
     const auto eq = entry.find('=');
     if (eq == std::string::npos || trim(entry.substr(0, eq)).empty() ||
         trim(entry.substr(eq + 1)).empty()) {
       print_error("--set takes NAME=VALUE, got '" + entry + "'", "for example --set Rsn=47 or --set Csw=100pF");
-      return kExitBadInput;
+      return refuse(kExitBadInput, {}, "bad --set");
     }
     load_options.overrides.emplace_back(trim(entry.substr(0, eq)), trim(entry.substr(eq + 1)));
   }
@@ -281,7 +367,7 @@ int run_loaded(const RunOptions& options, const Loader& load) {
     for (const std::string& s : split_signal_list(list)) {
       if (s.empty()) {
         print_error("--record: empty signal name in '" + list + "'", "separate names with single commas: --record drain,Lc.i");
-        return kExitBadInput;
+        return refuse(kExitBadInput, {}, "bad --record");
       }
       load_options.records.push_back(s);
     }
@@ -291,18 +377,21 @@ int run_loaded(const RunOptions& options, const Loader& load) {
   LoadResult loaded = load(load_options);
   if (!loaded.ok()) {
     print_diagnostics(loaded.diagnostics, options.strict);
-    return kExitBadInput;
+    return refuse(kExitBadInput, loaded.diagnostics, "the file has errors");
   }
   const Circuit& circuit = *loaded.circuit;
+  out.json["file"] = circuit.file;
+  out.json["title"] = circuit.title;
+  out.junit.name = circuit.file;
   Diagnostics warnings;  // printed at the end, after the summary
   for (const Diagnostic& d : loaded.diagnostics)
     if (d.severity != Severity::Error) warnings.push_back(d);
   if (options.strict && !warnings.empty()) {
     print_diagnostics(warnings, true);
-    return kExitBadInput;
+    return refuse(kExitBadInput, warnings, "warnings under --strict");
   }
   const std::optional<TransientPlan> plan = plan_transient(options, circuit);
-  if (!plan) return kExitBadInput;
+  if (!plan) return refuse(kExitBadInput, {}, "no transient to run");
   for (const Diagnostic& n : not_run_notes(circuit)) warnings.push_back(n);
   const std::size_t rows = expected_rows(plan->until, plan->every);
 
@@ -316,7 +405,7 @@ int run_loaded(const RunOptions& options, const Loader& load) {
       csv_file = std::make_unique<AtomicFile>(options.csv);
       if (!csv_file->ok()) {
         print_error(csv_file->error());
-        return kExitBadInput;
+        return refuse(kExitBadInput, {}, csv_file->error());
       }
       stream = csv_file->stream();
     }
@@ -335,11 +424,15 @@ int run_loaded(const RunOptions& options, const Loader& load) {
   // --- Engine -------------------------------------------------------------------
   const bool show_progress = !options.quiet && !options.no_progress && ProgressBar::stderr_is_terminal();
   ProgressBar progress(show_progress, rows);
+  const EvaluationPlan evaluation_plan(circuit, circuit.records, safety);
   solver::TransientOptions engine;
   engine.until = plan->until;
   engine.every = plan->every;
   engine.initial_dc = plan->initial_dc;
   engine.strict = options.strict;
+  engine.dense_output = true;
+  engine.trajectory_signals = evaluation_plan.extra_signals();
+  engine.formula_tolerance = formula_tolerance;
   if (show_progress) engine.progress = [&progress](double fraction) { progress.update(fraction); };
 
   NonFinite non_finite;
@@ -371,7 +464,7 @@ int run_loaded(const RunOptions& options, const Loader& load) {
     Diagnostics all = warnings;
     all.insert(all.end(), engine_diagnostics.begin(), engine_diagnostics.end());
     print_diagnostics(all, options.strict);
-    return code;
+    return refuse(code, all, code == kExitNumerical ? "numerical failure" : "bad input");
   };
   if (summary.status == solver::Status::BadInput) return fail(kExitBadInput);
   if (summary.status == solver::Status::Numerical) return fail(kExitNumerical);
@@ -390,6 +483,19 @@ int run_loaded(const RunOptions& options, const Loader& load) {
     if (d.severity == Severity::Error) return fail(kExitNumerical);
   }
   for (const Diagnostic& d : engine_diagnostics) warnings.push_back(d);
+
+  // --- Figures, verdicts, ratings, safety -----------------------------------------
+  Evaluation evaluation;
+  if (summary.trajectory) evaluation = evaluation_plan.evaluate(*summary.trajectory, summary.states);
+  Diagnostics figure_errors;
+  for (const Diagnostic& d : evaluation.diagnostics)
+    (d.severity == Severity::Error ? figure_errors : warnings).push_back(d);
+  if (summary.formula_error > formula_tolerance)
+    warnings.push_back(make_diagnostic(
+        Severity::Warning, circuit.transient ? circuit.transient->where : SourcePosition{},
+        "the formula() sources are fitted to " + format_si(summary.formula_error, "") +
+            " of their peak, not to the tolerance " + format_si(formula_tolerance, ""),
+        "a smoother formula, or a looser --tol"));
   if (options.strict) {
     for (const Diagnostic& d : warnings)
       if (d.severity == Severity::Warning) return fail(kExitBadInput);
@@ -408,20 +514,21 @@ int run_loaded(const RunOptions& options, const Loader& load) {
   // --- Summary, plot, warnings ---------------------------------------------------
   int warning_count = 0;
   for (const Diagnostic& d : warnings) warning_count += d.severity == Severity::Warning;
-  if (!options.quiet) {
+  std::FILE* console = csv_to_stdout ? stderr : stdout;
+  if (run_mode && !options.quiet) {
     // With the CSV on stdout the summary moves to stderr, so the CSV stays clean.
-    print_summary(csv_to_stdout ? stderr : stdout, circuit, *plan, rows, summary, warning_count,
-                  options.csv, options);
+    print_summary(console, circuit, *plan, rows, summary, warning_count, options.csv, options);
+    print_evaluation(console, evaluation);
+    std::fflush(console);
   }
   // A `modes` statement: the natural modes table after the summary
   // (the same table as `ringdown modes`).
-  if (circuit.modes && !options.quiet) {
+  if (run_mode && circuit.modes && !options.quiet) {
     solver::ModesOptions modes_options;
     modes_options.strict = options.strict;
     Diagnostics modes_diagnostics;
     const solver::ModesResult modes = solver::compute_modes(circuit, modes_options, modes_diagnostics);
-    std::FILE* out = csv_to_stdout ? stderr : stdout;
-    if (modes.ok) std::fprintf(out, "\n%s", format_modes(circuit, modes).c_str());
+    if (modes.ok) std::fprintf(console, "\n%s", format_modes(circuit, modes).c_str());
     for (const Diagnostic& d : modes_diagnostics) warnings.push_back(d);
   }
   int status = kExitOk;
@@ -438,8 +545,172 @@ int run_loaded(const RunOptions& options, const Loader& load) {
       status = kExitBadInput;
     }
   }
+  // check is quiet unless something fails; warnings still show (they may be why).
   print_diagnostics(warnings, false);
-  return status;
+  print_diagnostics(figure_errors, false);
+  if (!figure_errors.empty()) status = kExitBadInput;
+  // Failed expects: in check, one error per expect naming the file, the line and the value.
+  Diagnostics failed;
+  for (const ExpectOutcome& e : evaluation.expects) {
+    if (e.pass || !e.value.ok) continue;
+    failed.push_back(make_diagnostic(
+        Severity::Error, e.expect->where,
+        "expect failed: " + e.expect->figure.text + " = " + figure_text(e.expect->figure, e.value) +
+            ", the limit is " + limit_text(*e.expect)));
+  }
+  if (!run_mode) print_diagnostics(failed, false);
+  // The mains caution: on the console unless --accept-mains-risk (always in JSON).
+  if (evaluation.safety.hazardous && !safety.accept_risk)
+    std::fputs(caution_text(evaluation.safety).c_str(), stderr);
+
+  out.failed_expects = evaluation.failed_expects();
+  if (mode == Mode::Check && status == kExitOk && out.failed_expects > 0) status = kExitDiffers;
+  out.exit_code = status;
+
+  // --- JSON and JUnit -----------------------------------------------------------
+  nlohmann::json& j = out.json;
+  j["exit_code"] = status;
+  j["analyses"]["transient"] = {{"until", plan->until},
+                                {"every", plan->every},
+                                {"initial", plan->initial_dc ? "dc" : "zero"},
+                                {"samples", summary.samples},
+                                {"states", summary.states},
+                                {"segments", summary.segments},
+                                {"switch_events", summary.switch_events}};
+  if (summary.formula_error > 0) {
+    j["analyses"]["transient"]["formula_error"] = summary.formula_error;
+    j["analyses"]["transient"]["formula_tolerance"] = formula_tolerance;
+  }
+  j["operating_point"] = nlohmann::json::array();
+  for (const auto& e : summary.operating_point)
+    j["operating_point"].push_back(
+        {{"name", e.name}, {"value", e.value}, {"unit", e.unit ? unit_symbol(*e.unit) : ""}});
+  j["recorded"] = nlohmann::json::array();
+  for (const Signal& s : circuit.records) j["recorded"].push_back(s.name);
+  const nlohmann::json ev = evaluation_json(evaluation);
+  for (auto it = ev.begin(); it != ev.end(); ++it) j[it.key()] = it.value();
+  j["cautions"] = safety_json(evaluation.safety, safety.accept_risk);
+  Diagnostics all = warnings;
+  all.insert(all.end(), figure_errors.begin(), figure_errors.end());
+  j["diagnostics"] = diagnostics_json(all);
+  j["run_time"] = {{"engine", summary.seconds}, {"total", elapsed()}};
+
+  for (const ExpectOutcome& e : evaluation.expects) {
+    JUnitCase c;
+    c.name = "expect " + e.expect->text;
+    c.classname = circuit.file;
+    if (!e.value.ok) {
+      c.error = true;
+      c.message = e.value.error;
+    } else if (!e.pass) {
+      c.failed = true;
+      c.message = e.expect->figure.text + " = " + figure_text(e.expect->figure, e.value) +
+                  ", the limit is " + limit_text(*e.expect);
+      c.detail = position_of(e.expect->where) + ": " + c.message;
+    }
+    out.junit.cases.push_back(c);
+  }
+  out.junit.seconds = elapsed();
+  return out;
+}
+
+}  // namespace
+
+CLI::App* setup_run(CLI::App& app, RunOptions& o) {
+  CLI::App* cmd = app.add_subcommand(
+      "run", "Run the transient analysis of a circuit file and print the summary");
+  cmd->add_option("FILE", o.file, "circuit file (.rlc)")->required();
+  add_shared_flags(cmd, o);
+  cmd->add_option("--csv", o.csv, "write the recorded signals as CSV ('-': stdout)")
+      ->type_name("PATH");
+  cmd->add_option("--digits", o.digits, "significant digits in the CSV (default 12)")
+      ->type_name("N")
+      ->check([](const std::string& text) -> std::string {
+        try {
+          const int n = std::stoi(text);
+          if (n >= 1 && n <= kMaxDigits) return {};
+        } catch (const std::exception&) {
+        }
+        return "takes a whole number from 1 to 17, got '" + text + "'";
+      });
+  cmd->add_option("--plot", o.plot, "plot the recorded signals: term, or PATH.png|.svg|.pdf")
+      ->type_name("TARGET");
+  return cmd;
+}
+
+CLI::App* setup_check(CLI::App& app, CheckOptions& o) {
+  CLI::App* cmd = app.add_subcommand(
+      "check", "Run circuit files and check their expects: quiet unless something fails, exit 1 if an expect fails");
+  cmd->add_option("FILE", o.files, "circuit files (.rlc)")->required();
+  add_shared_flags(cmd, o.run);
+  cmd->add_option("--junit", o.junit, "write a JUnit XML report, one test case per expect")
+      ->type_name("PATH");
+  return cmd;
+}
+
+int run_run(const RunOptions& options) {
+  if (!readable_or_report(options.file)) return kExitBadInput;
+  const std::string file = options.file;
+  return run_loaded(options, [file](const LoadOptions& load) { return load_file(file, load); });
+}
+
+int run_loaded(const RunOptions& options, const Loader& load) {
+  const FileOutcome outcome = execute(options, load, Mode::Run);
+  if (!options.json.empty() && !write_json_file(options.json, outcome.json)) return kExitBadInput;
+  return outcome.exit_code;
+}
+
+int run_check(const CheckOptions& options) {
+  int worst = kExitOk;
+  std::vector<JUnitSuite> suites;
+  nlohmann::json files = nlohmann::json::array();
+  int failed = 0;
+  for (const std::string& file : options.files) {
+    RunOptions run = options.run;
+    run.file = file;
+    run.quiet = true;
+    run.csv.clear();
+    run.plot.clear();
+    FileOutcome outcome;
+    if (!readable_or_report(file)) {
+      outcome.exit_code = kExitBadInput;
+      outcome.json = {{"file", file}, {"exit_code", kExitBadInput}, {"error", "cannot read the file"}};
+      JUnitCase c;
+      c.name = "run " + file;
+      c.classname = file;
+      c.error = true;
+      c.message = "cannot read the file";
+      outcome.junit.name = file;
+      outcome.junit.cases.push_back(c);
+    } else {
+      outcome = execute(run, [&file](const LoadOptions& load) { return load_file(file, load); }, Mode::Check);
+    }
+    // The worst outcome wins: a numerical failure (3) over bad input (2) over a failed expect (1).
+    worst = std::max(worst, outcome.exit_code);
+    failed += outcome.failed_expects;
+    files.push_back(outcome.json);
+    suites.push_back(std::move(outcome.junit));
+  }
+  if (!options.run.json.empty()) {
+    nlohmann::json j{{"files", files}, {"failed_expects", failed}, {"exit_code", worst}};
+    if (!write_json_file(options.run.json, j)) worst = std::max(worst, static_cast<int>(kExitBadInput));
+  }
+  if (!options.junit.empty()) {
+    AtomicFile out(options.junit);
+    const std::string xml = junit_xml(suites);
+    std::string error;
+    if (!out.ok())
+      error = out.error();
+    else if (std::fwrite(xml.data(), 1, xml.size(), out.stream()) != xml.size())
+      error = "cannot write '" + options.junit + "': " + std::strerror(errno);
+    else if (!out.commit())
+      error = out.error();
+    if (!error.empty()) {
+      print_error(error);
+      worst = std::max(worst, static_cast<int>(kExitBadInput));
+    }
+  }
+  return worst;
 }
 
 }  // namespace ringdown::cli

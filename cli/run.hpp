@@ -1,8 +1,10 @@
-// `ringdown run FILE`: the transient analysis of a circuit file, its summary
-// on stdout, and on request the recorded signals as CSV (--csv) and a plot
-// (--plot). CLI.md names the flags; this version runs the transient
-// statement only (frequency, modes, sweeps, trials and the figures of
-// report/expect come with later issues and are announced as not run).
+// `ringdown run FILE` and `ringdown check FILE...`: the transient analysis of a
+// circuit file, its figures (report), verdicts (expect), ratings and safety
+// screen; `run` prints the summary on stdout and on request writes the
+// recorded signals as CSV (--csv), a plot (--plot) and the summary as JSON
+// (--json); `check` is quiet unless something fails, exits 1 when an expect
+// fails and writes JUnit XML (--junit). CLI.md names the flags. Sweeps and
+// trials are announced as not run by this version.
 #pragma once
 
 #include <functional>
@@ -29,10 +31,24 @@ struct RunOptions {
   bool quiet = false;               // --quiet: no summary, no progress
   bool no_progress = false;         // --no-progress
   bool strict = false;              // --strict: warnings are errors (exit 2)
+  std::string json;                 // --json PATH: the summary as JSON
+  std::string tol;                  // --tol: formula() fit tolerance (relative), as typed
+  std::string elv;                  // --elv AC_RMS,DC: the safety band, as typed
+  bool accept_mains_risk = false;   // --accept-mains-risk
 };
 
 CLI::App* setup_run(CLI::App& app, RunOptions& options);
 int run_run(const RunOptions& options);
+
+// `ringdown check FILE... [--junit PATH]`: the options of run that make sense for
+// several files at once.
+struct CheckOptions {
+  std::vector<std::string> files;
+  RunOptions run;      // file, csv, plot unused
+  std::string junit;   // --junit PATH
+};
+CLI::App* setup_check(CLI::App& app, CheckOptions& options);
+int run_check(const CheckOptions& options);
 
 // The body of `run` for a circuit from anywhere (a file, or the demo's text):
 // `load` reads and elaborates it with the given options.

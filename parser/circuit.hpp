@@ -105,9 +105,11 @@ enum class Quantity { Voltage, Current, Power, CapacitanceVoltage, InductanceCur
 
 // An arithmetic expression over node voltages and part quantities.
 struct SignalExpr {
-  enum class Op { NodeVoltage, PartQuantity, Constant, Add, Sub, Mul, Div, Neg, Pow };
+  // ElementCurrent: the current of one primitive element (index into Circuit::elements),
+  // hidden ones included; not written by users (the energy balance builds it).
+  enum class Op { NodeVoltage, PartQuantity, ElementCurrent, Constant, Add, Sub, Mul, Div, Neg, Pow };
   Op op = Op::Constant;
-  int index = -1;                 // node (NodeVoltage) or part (PartQuantity)
+  int index = -1;                 // node (NodeVoltage), part (PartQuantity), element (ElementCurrent)
   Quantity quantity = Quantity::Voltage;
   double constant = 0;            // Constant; exponent for Pow is args[1] (a Constant)
   std::vector<SignalExpr> args;   // operands

@@ -98,6 +98,7 @@ class SignalCompiler {
     using Op = SignalExpr::Op;
     switch (e.op) {
       case Op::NodeVoltage: return from_map(net_.node_voltage(e.index));
+      case Op::ElementCurrent: return from_map(net_.element_current(c_, e.index, closed_));
       case Op::PartQuantity:
         switch (e.quantity) {
           case Quantity::Voltage: return from_map(net_.part_voltage(c_, e.index));

@@ -69,7 +69,7 @@ std::string fmt_num(double v, const char* unit) { return format_si(v, unit); }
 
 // --- Signals compiled to a postfix program over base linear maps ----------
 
-enum class BaseKind { Node, PartVoltage, PartCurrent, CapVoltage, IndCurrent };
+enum class BaseKind { Node, PartVoltage, PartCurrent, CapVoltage, IndCurrent, ElementCurrent };
 struct BaseRef {
   BaseKind kind;
   int index;
@@ -100,6 +100,7 @@ struct Compiler {
     auto load = [&](BaseKind k, int i) { out.push_back({Instr::Load, base_of({k, i}), 0}); };
     switch (e.op) {
       case Op::NodeVoltage: load(BaseKind::Node, e.index); return true;
+      case Op::ElementCurrent: load(BaseKind::ElementCurrent, e.index); return true;
       case Op::PartQuantity:
         switch (e.quantity) {
           case Quantity::Voltage: load(BaseKind::PartVoltage, e.index); return true;
@@ -384,6 +385,7 @@ int Engine::config_for(const mna::SwitchState& closed) {
       case BaseKind::PartCurrent: map = net_->part_current(c_, ref.index, closed); break;
       case BaseKind::CapVoltage: map = net_->capacitance_voltage(c_, ref.index); break;
       case BaseKind::IndCurrent: map = net_->inductance_current(c_, ref.index); break;
+      case BaseKind::ElementCurrent: map = net_->element_current(c_, ref.index, closed); break;
     }
     if (map.x_row.size() == n) Lx.row(b) = map.x_row;
     if (map.dx_row.size() == n) Ldx.row(b) = map.dx_row;
