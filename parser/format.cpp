@@ -15,7 +15,13 @@
 //    * / ^ tight; a minus written as a sign (space before, none after) stays
 //    a sign;
 //  - a trailing comment follows two spaces; comment lines are indented like
-//    statements; runs of blank lines become one; none at the start or end.
+//    statements; runs of blank lines become one; none at the start or end;
+//  - a run of consecutive one-line element statements (or of `NAME = EXPR`
+//    lines, or of `report N = F` lines) at the same depth is a table: each field is padded to the widest
+//    field of its column in the run (a row's last field pads nothing), and
+//    the run's trailing comments start in one column, two spaces after the
+//    longest commented row. A blank line, a comment line or any other
+//    statement ends the run.
 // Every rule depends only on the tokens and on spacing the rules themselves
 // produce, so formatting twice gives the same text.
 #include <algorithm>
@@ -165,6 +171,42 @@ std::string separator(const std::vector<Token>& tokens, std::size_t k) {
   return " ";
 }
 
+// Element keywords whose lines form tables (use and couple lines have other shapes).
+bool table_keyword(const std::string& w) { return padded_keywords().count(w) && w != "use" && w != "couple"; }
+
+// One output line before alignment.
+struct Row {
+  enum class Kind { Element, Parameter, Report, Other } kind = Kind::Other;
+  std::string indent;
+  std::vector<std::string> fields;  // Element/Parameter: the cells; Other: one cell, the text
+  std::string comment;              // trailing comment, "" when none
+  bool blank_before = false;
+};
+
+// The cells of a one-line statement: a new cell starts at each top-level single space
+// between fields (not around a spaced operator); the keyword's padding is the keyword field.
+std::vector<std::string> cells(const std::vector<Token>& tokens) {
+  std::vector<std::string> out;
+  std::string cell;
+  for (std::size_t k = 0; k < tokens.size(); ++k) {
+    if (k > 0) {
+      const std::string sep = separator(tokens, k);
+      const bool operator_space = tokens[k - 1].spaced || tokens[k].spaced;
+      const bool boundary = k == 1 || (sep == " " && tokens[k].depth == 0 && !operator_space &&
+                                       tokens[k].text != "(");
+      if (boundary) {
+        out.push_back(cell);
+        cell.clear();
+      } else {
+        cell += sep;
+      }
+    }
+    cell += tokens[k].text;
+  }
+  out.push_back(cell);
+  return out;
+}
+
 std::string rtrim(std::string s) {
   while (!s.empty() && blank(s.back())) s.pop_back();
   return s;
@@ -182,7 +224,7 @@ std::optional<std::string> format_text(std::string_view text, const std::string&
   std::vector<SplitProblem> problems;
   const std::vector<RawStatement> statements = split_statements(f, problems);
 
-  std::string out;
+  std::vector<Row> rows;
   bool pending_blank = false;
   int block_depth = 0;
   auto comment_of = [&](std::size_t line) -> std::string {
@@ -191,11 +233,15 @@ std::optional<std::string> format_text(std::string_view text, const std::string&
     const std::size_t end = line + 1 < f.line_starts.size() ? f.line_starts[line + 1] - 1 : f.text.size();
     return rtrim(f.text.substr(begin, end - begin));
   };
-  auto emit_line = [&](const std::string& s) {
-    if (pending_blank && !out.empty()) out += '\n';
+  auto emit_row = [&](Row r) {
+    r.blank_before = pending_blank && !rows.empty();
     pending_blank = false;
-    out += s;
-    out += '\n';
+    rows.push_back(std::move(r));
+  };
+  auto emit_line = [&](const std::string& s) {
+    Row r;
+    r.fields.push_back(s);
+    emit_row(std::move(r));
   };
   auto indent = [&](int extra) { return std::string(static_cast<std::size_t>(2 * block_depth + extra), ' '); };
 
@@ -222,6 +268,28 @@ std::optional<std::string> format_text(std::string_view text, const std::string&
     const bool is_end = keyword == "end" && tokens.size() == 1;
     if (is_end && block_depth > 0) --block_depth;
     const std::size_t last_line = f.line_of(f.offset(st.last > st.first ? st.last - 1 : st.first));
+    const bool parameter = tokens.size() > 2 && tokens[0].kind == TokenKind::Word && tokens[1].text == "=";
+    const bool report = keyword == "report" && tokens.size() > 3 && tokens[2].text == "=";
+    if (last_line == line && tokens.size() > 1 && (table_keyword(keyword) || parameter || report)) {
+      Row r;
+      r.kind = parameter ? Row::Kind::Parameter : report ? Row::Kind::Report : Row::Kind::Element;
+      r.indent = indent(0);
+      if (parameter || report) {
+        const std::size_t eq = parameter ? 1 : 2;
+        std::string rest = "=";
+        for (std::size_t k = eq + 1; k < tokens.size(); ++k) rest += separator(tokens, k) + tokens[k].text;
+        r.fields.clear();
+        for (std::size_t k = 0; k < eq; ++k) r.fields.push_back(tokens[k].text);
+        r.fields.push_back(rest);
+      } else {
+        r.fields = cells(tokens);
+        r.fields[0] += std::string(keyword.size() < kKeywordField - 1 ? kKeywordField - 1 - keyword.size() : 0, ' ');
+      }
+      r.comment = comment_of(line);
+      emit_row(std::move(r));
+      line = last_line + 1;
+      continue;
+    }
     std::size_t k = 0;
     for (std::size_t l = line; l <= last_line; ++l) {
       std::string s;
@@ -243,6 +311,45 @@ std::optional<std::string> format_text(std::string_view text, const std::string&
     }
     if (keyword == "block") ++block_depth;
     line = last_line + 1;
+  }
+
+  // Tables: runs of rows of one kind at one indentation, with no blank line inside.
+  std::string out;
+  for (std::size_t i = 0; i < rows.size();) {
+    std::size_t j = i + 1;
+    if (rows[i].kind != Row::Kind::Other)
+      while (j < rows.size() && rows[j].kind == rows[i].kind && rows[j].indent == rows[i].indent &&
+             !rows[j].blank_before)
+        ++j;
+    std::vector<std::size_t> width;
+    for (std::size_t r = i; r < j; ++r)
+      for (std::size_t c = 0; c + 1 < rows[r].fields.size(); ++c) {
+        if (width.size() <= c) width.resize(c + 1, 0);
+        width[c] = std::max(width[c], rows[r].fields[c].size());
+      }
+    std::vector<std::string> texts;
+    std::size_t comment_column = 0;
+    for (std::size_t r = i; r < j; ++r) {
+      const Row& row = rows[r];
+      std::string t = row.indent;
+      for (std::size_t c = 0; c < row.fields.size(); ++c) {
+        if (c > 0) t += ' ';
+        t += row.fields[c];
+        if (c + 1 < row.fields.size() && row.kind != Row::Kind::Other)
+          t += std::string(width[c] - row.fields[c].size(), ' ');
+      }
+      if (!row.comment.empty()) comment_column = std::max(comment_column, t.size() + 2);
+      texts.push_back(std::move(t));
+    }
+    for (std::size_t r = i; r < j; ++r) {
+      const Row& row = rows[r];
+      if (row.blank_before) out += '\n';
+      std::string t = texts[r - i];
+      if (!row.comment.empty()) t += std::string(comment_column - t.size(), ' ') + row.comment;
+      out += t;
+      out += '\n';
+    }
+    i = j;
   }
   return out;
 }

@@ -38,19 +38,19 @@ TEST(Format, CanonicalLayout) {
       "title \"Demo\"\n"
       "\n"
       "Lcoil = 10mH  # coil\n"
-      "Rb = 2*Rx + 1k\n"
-      "Rx = 1k\n"
+      "Rb    = 2*Rx + 1k\n"
+      "Rx    = 1k\n"
       "voltage   Vbus bus gnd (12V + sine(amp=0.5V, freq=100k))\n"
-      "inductor  Lc bus drain Lcoil dcr=48Ohm rated=1A\n"
-      "voltage   V2 m gnd -50m\n"
-      "resistor  Rm m drain (Rb*2)\n"
+      "inductor  Lc   bus drain Lcoil dcr=48Ohm rated=1A\n"
+      "voltage   V2   m   gnd   -50m\n"
+      "resistor  Rm   m   drain (Rb*2)\n"
       "block rc (a, b) R=47 C=1n\n"
       "  # inside\n"
-      "  resistor  R1 a mid R\n"
-      "  capacitor C1 mid b C esr=10m\n"
+      "  resistor  R1 a   mid R\n"
+      "  capacitor C1 mid b   C esr=10m\n"
       "end\n"
       "use       rc SN1 (drain, gnd) R=100\n"
-      "voltage   V3 x gnd points(0 0, 1m -5V, 2m 1e-3)\n"
+      "voltage   V3  x gnd points(0 0, 1m -5V, 2m 1e-3)\n"
       "resistor  Rx2 x gnd 1\n"
       "voltage   V4 y gnd (step(to=1) +\n"
       "    sine(freq=1k))  # continued\n"
@@ -62,6 +62,27 @@ TEST(Format, CanonicalLayout) {
       "expect final(drain) = 24V within 1%\n"
       "sweep Rx = (1k, 2k)\n";
   EXPECT_EQ(out, expected);
+}
+
+// Runs of element lines are tables; a blank line or a comment line ends a run, and a run's
+// trailing comments share a column (docs/language.md, "Canonical layout").
+TEST(Format, TablesEndAtBlankAndCommentLines) {
+  const std::string in =
+      "resistor R1 a b 1k # one\n"
+      "capacitor Cbig a gnd 10u  tol=10% # two\n"
+      "\n"
+      "resistor R22 b gnd 47\n"
+      "# note\n"
+      "inductor L1 b c 1m\n";
+  const std::string expected =
+      "resistor  R1   a b   1k           # one\n"
+      "capacitor Cbig a gnd 10u tol=10%  # two\n"
+      "\n"
+      "resistor  R22 b gnd 47\n"
+      "# note\n"
+      "inductor  L1 b c 1m\n";
+  EXPECT_EQ(fmt(in), expected);
+  EXPECT_EQ(fmt(expected), expected);
 }
 
 TEST(Format, Idempotent) {
@@ -107,6 +128,9 @@ TEST(Format, EveryShippedCircuitIsIdempotent) {
       auto twice = format_text(*once, entry.path().string(), d);
       ASSERT_TRUE(twice.has_value());
       EXPECT_EQ(*once, *twice) << entry.path();
+      // The shipped examples are kept in canonical layout (`ringdown fmt --check circuits/*.rlc`
+      // passes), so a user's first fmt run on a copy changes nothing.
+      EXPECT_EQ(ss.str(), *once) << entry.path() << " is not in canonical layout: run ringdown fmt on it";
       ++files;
     }
   }
