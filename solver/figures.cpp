@@ -2,7 +2,9 @@
 //
 // How a window [a, b] of a signal is scanned:
 //  1. Nodes: a, b, the output samples and the corners inside (a, b); between consecutive
-//     nodes a few more (kRefineSubintervals, or finer if Trajectory::bracket_step() asks).
+//     nodes a few more: kRefineSubintervals when the trajectory gives no bracket step, else
+//     ceil(interval / bracket_step()) (one, the samples alone, when the grid resolves the
+//     fastest ringing), with a few nodes at halving distances after each piece's start.
 //     Each node holds the value and the derivative; at a corner the left limit ends one
 //     piece and the right limit starts the next, with a "jump node" between them when the
 //     signal steps there.
@@ -44,6 +46,10 @@ constexpr int kRefineSubintervals = 5;
 // Cap on subintervals per sample interval requested through bracket_step(), so that a
 // pathological hint cannot make a figure run for hours.
 constexpr long kMaxSubintervals = 100000;
+// With a bracket step the grid may be the samples alone (every sample interval resolves
+// the ringing); in the first interval of each piece nodes at 1/2, 1/4, ... 1/32 of it
+// catch a transient of real modes faster than the grid (common practice, no source).
+constexpr int kPieceStartHalvings = 5;
 // Quadrature: accept an interval when the 8- and 16-point rules agree to this fraction of
 // the running integral of |f| (the brief asks for 1e-12; figures promise 1e-9).
 constexpr double kIntegralTolerance = 1e-12;
@@ -307,10 +313,19 @@ class Scan {
         const double x0 = coarse[m], x1 = coarse[m + 1];
         long sub = kRefineSubintervals;
         if (step > 0) {
-          sub = std::max<long>(sub, static_cast<long>(std::ceil((x1 - x0) / step)));
-          sub = std::min(sub, kMaxSubintervals);
+          const double want = std::ceil((x1 - x0) / step);
+          sub = want >= static_cast<double>(kMaxSubintervals) ? kMaxSubintervals
+                                                              : std::max(1L, static_cast<long>(want));
         }
-        for (long q = 0; q < sub; ++q) times.push_back(x0 + (x1 - x0) * q / sub);
+        // After the start of a piece (the window's start, a corner), where fast real modes
+        // die out, a few nodes at halving distances when the interval itself is not split.
+        const bool geometric = m == 0 && step > 0 && sub < kRefineSubintervals;
+        for (long q = 0; q < sub; ++q) {
+          times.push_back(x0 + (x1 - x0) * q / sub);
+          if (q == 0 && geometric)
+            for (int j = kPieceStartHalvings; j >= 1; --j)
+              times.push_back(x0 + (x1 - x0) / sub * std::ldexp(1.0, -j));
+        }
       }
       times.push_back(p1);
       const bool left_limit_at_end = k + 2 < bounds.size() || end_is_corner;

@@ -2,8 +2,9 @@
 // and the comparison of an `expect`.
 //
 // Every figure reads a Trajectory (trajectory.hpp): extrema, crossings, rise and settling
-// instants are bracketed on the output grid (refined a few points per interval, and at
-// least every Trajectory::bracket_step()), then located by Brent's method on value() or
+// instants are bracketed on the output grid (refined a few points per interval, or, when the
+// trajectory gives Trajectory::bracket_step(), at that spacing and no finer), then located
+// by Brent's method on value() or
 // derivative() to about 1e-13 of the window in time; integrals (mean, rms, integral, energy,
 // power) use adaptive Gauss-Legendre quadrature between consecutive samples and corners,
 // good to about 1e-12 relative. Nothing here reads the sample grid alone.

@@ -16,6 +16,7 @@
 #include <algorithm>
 #include <chrono>
 #include <cmath>
+#include <complex>
 #include <cstring>
 #include <limits>
 #include <map>
@@ -27,8 +28,10 @@
 
 #include "mna/descriptor.hpp"
 #include "parser/units.hpp"
+#include "solver/dense_output.hpp"
 #include "solver/initial_state.hpp"
 #include "solver/propagation.hpp"
+#include "solver/signal_program.hpp"
 #include "solver/source_model.hpp"
 #include "solver/state_space.hpp"
 
@@ -63,96 +66,47 @@ constexpr double kGrowthOverRun = 1e-3;
 constexpr double kGrowthRelative = 1e-9;
 // Progress callbacks per run.
 constexpr long kProgressCalls = 100;
+// The output-step and run-length warnings (NETLIST.md section 7) read the eigen-
+// decomposition of every configuration met, O(r^3) (about 0.02 s at 100 states on one
+// core, more than a short run of such a network costs): above this many states they are
+// skipped with a note, and bracket_step comes from Bendixson's bound instead.
+constexpr Eigen::Index kModalStates = 100;
+// A mode "shows" in a recorded signal when its visibility (dense_output.hpp: amplitude
+// per unit stored energy, relative to the largest mode in that signal) is at least this
+// for the warnings (a tenth of a percent is what a plot shows; common practice, no
+// source), and at least kBracketVisible for bracket_step (figures hold 1e-9, so smaller
+// ringing still has to be bracketed; ringing below this moves a figure by less).
+constexpr double kShowVisible = 1e-3;
+constexpr double kBracketVisible = 1e-6;
+// A complex pair whose amplitude falls by more than e^27.6 (1e-12) in one period shows no
+// ringing (zeta above about 0.975), and one whose period is below this many time
+// resolutions cannot be told from a jump: neither counts as an oscillation.
+constexpr double kRingDecayPerPeriod = 27.6;
+constexpr double kMinPeriodInstants = 100.0;
+// Warnings: the output step must be at most a third of the fastest period (NETLIST.md);
+// the suggestion gives ten samples per period. The run must last five time constants.
+constexpr double kAliasFraction = 1.0 / 3.0;
+constexpr double kSuggestSamplesPerPeriod = 10.0;
+constexpr double kSteadyTimeConstants = 5.0;
+// bracket_step: a tenth of the fastest period (trajectory.hpp).
+constexpr double kBracketFraction = 0.1;
 
 
 std::string fmt_num(double v, const char* unit) { return format_si(v, unit); }
 
-// --- Signals compiled to a postfix program over base linear maps ----------
-
-enum class BaseKind { Node, PartVoltage, PartCurrent, CapVoltage, IndCurrent, ElementCurrent };
-struct BaseRef {
-  BaseKind kind;
-  int index;
-  bool operator<(const BaseRef& o) const {
-    return kind != o.kind ? kind < o.kind : index < o.index;
+// The 1-2-5 series value at or below x (down) or at or above it (up), for suggestions.
+double nice_125(double x, bool up) {
+  if (!(x > 0) || !std::isfinite(x)) return x;
+  const double decade = std::pow(10.0, std::floor(std::log10(x)));
+  const double steps[] = {1, 2, 5, 10};
+  if (up) {
+    for (double s : steps)
+      if (s * decade >= x * (1 - 1e-12)) return s * decade;
+    return 10 * decade;
   }
-};
-
-struct Instr {
-  enum Kind { Load, Const, Add, Sub, Mul, Div, Neg, Pow } kind = Const;
-  int base = -1;
-  double value = 0;
-};
-
-struct Compiler {
-  std::map<BaseRef, int> index;
-  std::vector<BaseRef> bases;
-  int base_of(BaseRef ref) {
-    auto it = index.find(ref);
-    if (it != index.end()) return it->second;
-    const int i = static_cast<int>(bases.size());
-    bases.push_back(ref);
-    index[ref] = i;
-    return i;
-  }
-  bool compile(const SignalExpr& e, std::vector<Instr>& out, std::string& error) {
-    using Op = SignalExpr::Op;
-    auto load = [&](BaseKind k, int i) { out.push_back({Instr::Load, base_of({k, i}), 0}); };
-    switch (e.op) {
-      case Op::NodeVoltage: load(BaseKind::Node, e.index); return true;
-      case Op::ElementCurrent: load(BaseKind::ElementCurrent, e.index); return true;
-      case Op::PartQuantity:
-        switch (e.quantity) {
-          case Quantity::Voltage: load(BaseKind::PartVoltage, e.index); return true;
-          case Quantity::Current: load(BaseKind::PartCurrent, e.index); return true;
-          case Quantity::Power:
-            load(BaseKind::PartVoltage, e.index);
-            load(BaseKind::PartCurrent, e.index);
-            out.push_back({Instr::Mul, -1, 0});
-            return true;
-          case Quantity::CapacitanceVoltage: load(BaseKind::CapVoltage, e.index); return true;
-          case Quantity::InductanceCurrent: load(BaseKind::IndCurrent, e.index); return true;
-        }
-        return false;
-      case Op::Constant: out.push_back({Instr::Const, -1, e.constant}); return true;
-      case Op::Neg:
-        if (e.args.size() != 1 || !compile(e.args[0], out, error)) return false;
-        out.push_back({Instr::Neg, -1, 0});
-        return true;
-      case Op::Add: case Op::Sub: case Op::Mul: case Op::Div: case Op::Pow: {
-        if (e.args.size() != 2) {
-          error = "malformed signal expression";
-          return false;
-        }
-        if (!compile(e.args[0], out, error) || !compile(e.args[1], out, error)) return false;
-        const Instr::Kind k = e.op == Op::Add   ? Instr::Add
-                              : e.op == Op::Sub ? Instr::Sub
-                              : e.op == Op::Mul ? Instr::Mul
-                              : e.op == Op::Div ? Instr::Div
-                                                : Instr::Pow;
-        out.push_back({k, -1, 0});
-        return true;
-      }
-    }
-    return false;
-  }
-};
-
-double run_program(const std::vector<Instr>& code, const double* base, double* stack) {
-  int top = 0;
-  for (const Instr& in : code) {
-    switch (in.kind) {
-      case Instr::Load: stack[top++] = base[in.base]; break;
-      case Instr::Const: stack[top++] = in.value; break;
-      case Instr::Neg: stack[top - 1] = -stack[top - 1]; break;
-      case Instr::Add: --top; stack[top - 1] += stack[top]; break;
-      case Instr::Sub: --top; stack[top - 1] -= stack[top]; break;
-      case Instr::Mul: --top; stack[top - 1] *= stack[top]; break;
-      case Instr::Div: --top; stack[top - 1] /= stack[top]; break;
-      case Instr::Pow: --top; stack[top - 1] = std::pow(stack[top - 1], stack[top]); break;
-    }
-  }
-  return top > 0 ? stack[top - 1] : 0.0;
+  for (int i = 3; i >= 0; --i)
+    if (steps[i] * decade <= x * (1 + 1e-12)) return steps[i] * decade;
+  return decade;
 }
 
 // --- Engine state ------------------------------------------------------------
@@ -256,6 +210,8 @@ class Engine {
   void interval_with_corners(double t, double tn, std::size_t e_begin, std::size_t e_end,
                              const std::vector<Event>& events);
   void emit(double t);
+  void keep(double t, bool left_limit);  // dense output: a checkpoint of X_ now
+  void modal_checks();
   std::vector<Event> build_events(double t_end);
   void rebuild_state(const Eigen::VectorXd& xd, const std::vector<Eigen::VectorXd>& w);
   std::string unknown_label(int u) const;
@@ -306,6 +262,17 @@ class Engine {
   mna::SwitchState closed_;
   Eigen::VectorXd X_, Y_, work1_, work2_;
   Eigen::VectorXd x_op_;  // unknowns at t = 0 (operating point)
+
+  // Dense output (options.dense_output; null otherwise): checkpoints, the segments they
+  // name (in first-met order), the extra signals' programs, every s-th sample kept.
+  std::unique_ptr<DenseRecorder> dense_;
+  long dense_stride_ = 1;
+  std::map<std::pair<int, int>, int> dense_ids_;
+  std::vector<std::pair<int, int>> dense_keys_;
+  std::pair<int, int> dense_last_key_{-1, -1};
+  int dense_last_id_ = -1;
+  std::vector<std::vector<Instr>> extra_programs_;
+  double bracket_step_ = 0;
 };
 
 bool Engine::check_inputs() {
@@ -446,6 +413,130 @@ void Engine::check_stability(int config) {
       negative_resistor_ >= 0 ? c_.elements[static_cast<std::size_t>(negative_resistor_)].where
                               : run_where();
   diags_.push_back(make_diagnostic(Severity::Warning, where, msg));
+}
+
+// The output-step and run-length warnings (NETLIST.md section 7) and bracket_step, from the
+// natural modes of every configuration met and the oscillations of the sources' pieces.
+void Engine::modal_checks() {
+  const std::size_t nb = compiler_.bases.size();
+  std::vector<char> streamed(nb, 0), kept(nb, 0);
+  for (const auto& p : programs_)
+    for (const Instr& in : p)
+      if (in.kind == Instr::Load) streamed[static_cast<std::size_t>(in.base)] = kept[static_cast<std::size_t>(in.base)] = 1;
+  for (const auto& p : extra_programs_)
+    for (const Instr& in : p)
+      if (in.kind == Instr::Load) kept[static_cast<std::size_t>(in.base)] = 1;
+  const double min_period = kMinPeriodInstants * instant_;
+  const auto rings = [&](std::complex<double> pole) {
+    const double w = std::abs(pole.imag());
+    if (!(w > 0)) return false;
+    const double period = 2 * std::numbers::pi / w;
+    return period >= min_period && -pole.real() * period < kRingDecayPerPeriod;
+  };
+  double alias_w = 0, bracket_w = 0;
+  std::string alias_what;
+  std::optional<std::complex<double>> slow;
+  Eigen::Index skipped_states = 0;
+  bool alias_unknown = false;
+  std::vector<SeenMode> modes;
+  for (const Configuration& cfg : configs_) {
+    const StateSpace& s = cfg.ss;
+    const Eigen::Index r = s.A.rows();
+    if (r == 0) continue;
+    if (r > kModalStates || !seen_modes(s.A, s.C11, cfg.Px, modes)) {
+      skipped_states = std::max(skipped_states, r);
+      const double bound = oscillation_bound(s.A, s.C11);
+      bracket_w = std::max(bracket_w, bound);
+      if (bound > 0 && opt_.every > kAliasFraction * 2 * std::numbers::pi / bound)
+        alias_unknown = true;
+      continue;
+    }
+    const double zero = 64 * std::numeric_limits<double>::epsilon() * s.A.lpNorm<1>();
+    for (const SeenMode& m : modes) {
+      if (std::abs(m.pole) <= zero) continue;  // a constant mode: conserved charge or flux
+      double show = 0, keep_vis = 0;
+      for (std::size_t b = 0; b < nb; ++b) {
+        if (streamed[b]) show = std::max(show, m.visibility[b]);
+        if (kept[b]) keep_vis = std::max(keep_vis, m.visibility[b]);
+      }
+      if (rings(m.pole)) {
+        const double w = m.pole.imag();
+        if (show >= kShowVisible && w > alias_w) {
+          alias_w = w;
+          alias_what = "a natural mode at " + fmt_num(w / (2 * std::numbers::pi), "Hz");
+        }
+        if (keep_vis >= kBracketVisible) bracket_w = std::max(bracket_w, w);
+      }
+      // Decaying (not growing, not lossless): the slowest one sets the steady state.
+      const double rate = -m.pole.real();
+      if (rate > kGrowthRelative * std::abs(m.pole) && show >= kShowVisible &&
+          (!slow || rate < -slow->real()))
+        slow = m.pole;
+    }
+  }
+  // The sources' own oscillations (sine pieces): S's eigenvalues, per input block.
+  const std::vector<int>& input_elements = net_->input_elements();
+  for (const InputSystem& in : structures_) {
+    for (std::size_t j = 0; j < in.offset.size(); ++j) {
+      if (in.size[j] < 2) continue;
+      const Eigen::MatrixXd S = in.S.block(in.offset[j], in.offset[j], in.size[j], in.size[j]);
+      Eigen::EigenSolver<Eigen::MatrixXd> es(S, false);
+      if (es.info() != Eigen::Success) continue;
+      for (Eigen::Index i = 0; i < es.eigenvalues().size(); ++i) {
+        const std::complex<double> pole = es.eigenvalues()(i);
+        if (!rings(pole)) continue;
+        const double w = std::abs(pole.imag());
+        bracket_w = std::max(bracket_w, w);
+        if (w > alias_w) {
+          alias_w = w;
+          alias_what = "the waveform of " +
+                       element_label(c_, input_elements[j]) + " at " +
+                       fmt_num(w / (2 * std::numbers::pi), "Hz");
+        }
+      }
+    }
+  }
+  bracket_step_ = bracket_w > 0 ? kBracketFraction * 2 * std::numbers::pi / bracket_w : 0;
+
+  if (alias_w > 0) {
+    const double period = 2 * std::numbers::pi / alias_w;
+    if (opt_.every > kAliasFraction * period) {
+      diags_.push_back(make_diagnostic(
+          Severity::Warning, run_where(),
+          "the output step every=" + fmt_num(opt_.every, "s") +
+              " is coarser than a third of the period of the fastest oscillation the recorded "
+              "signals show, " + alias_what + " (period " + fmt_num(period, "s") +
+              "); figures stay exact; plots and CSV may alias",
+          "every=" + fmt_num(nice_125(period / kSuggestSamplesPerPeriod, false), "s") +
+              " gives ten samples per period"));
+    }
+  }
+  if (slow) {
+    const double tau = -1 / slow->real();
+    if (opt_.until < kSteadyTimeConstants * tau) {
+      std::string what = "time constant " + fmt_num(tau, "s");
+      if (slow->imag() > 0)
+        what += ", ringing at " + fmt_num(slow->imag() / (2 * std::numbers::pi), "Hz");
+      diags_.push_back(make_diagnostic(
+          Severity::Warning, run_where(),
+          "the run (until=" + fmt_num(opt_.until, "s") +
+              ") is shorter than five time constants of the slowest decaying mode the recorded "
+              "signals show (" + what + "); `final` is then not the steady state",
+          "until=" + fmt_num(nice_125(kSteadyTimeConstants * tau, true), "s") +
+              " lasts five time constants"));
+    }
+  }
+  if (skipped_states > 0) {
+    std::string which = alias_unknown ? "the output step against the fastest mode and the run's "
+                                        "length against the slowest were"
+                                      : "the run's length against the slowest mode was";
+    diags_.push_back(make_diagnostic(
+        Severity::Note, run_where(),
+        "not checked: " + which + " (the network has " + std::to_string(skipped_states) +
+            " states; the eigen-analysis this needs is done up to " +
+            std::to_string(kModalStates) + ")",
+        "`ringdown modes` lists the natural modes"));
+  }
 }
 
 bool Engine::initial_state() {
@@ -779,6 +870,7 @@ void Engine::reseat(const Eigen::VectorXd& in, Eigen::VectorXd& out, int from, i
 }
 
 void Engine::handle(const Event& ev) {
+  if (dense_) keep(ev.t, true);
   ++sum_.segments;
   const int from = structure_;
   const std::vector<int> refreshed = update_pieces(ev);
@@ -799,6 +891,21 @@ void Engine::handle(const Event& ev) {
   reseat(X_, Y_, from, structure_, refreshed);
   X_.swap(Y_);
   current_ = nullptr;
+  if (dense_) keep(ev.t, false);
+}
+
+void Engine::keep(double t, bool left_limit) {
+  const std::pair<int, int> key{config_, structure_};
+  if (key != dense_last_key_) {
+    const auto [it, fresh] = dense_ids_.emplace(key, static_cast<int>(dense_keys_.size()));
+    if (fresh) {
+      dense_keys_.push_back(key);
+      segment(config_, structure_);  // its output map, kept for the trajectory
+    }
+    dense_last_key_ = key;
+    dense_last_id_ = it->second;
+  }
+  dense_->keep(t, dense_last_id_, X_, left_limit);
 }
 
 // One output interval [t, t + every] with source corners strictly inside and
@@ -839,8 +946,32 @@ void Engine::interval_with_corners(double t, double tn, std::size_t e_begin, std
   sum_.segments += e_end - e_begin;
   current_ = nullptr;
 
+  // Step directly; with dense output, checkpoints on both sides of each corner.
+  const auto step_directly = [&]() {
+    for (std::size_t i = 0; i < steps.size(); ++i) {
+      const Step& st = steps[i];
+      structure_ = st.structure;
+      advance(st.length);
+      const bool corner = dense_ && i + 1 < steps.size();
+      if (corner) keep(events[e_begin + i].t, true);
+      if (st.next != st.structure || !st.refreshed.empty()) {
+        reseat(X_, Y_, st.structure, st.next, st.refreshed);
+        X_.swap(Y_);
+      }
+      if (corner) {
+        structure_ = st.next;
+        keep(events[e_begin + i].t, false);
+      }
+    }
+    structure_ = steps.back().next;
+  };
   auto found = composites_.find(key);
   if (found != composites_.end() && found->second.P.size() > 0) {
+    if (dense_) {  // the corners' states for the trajectory; the sample from the matrix
+      const Eigen::VectorXd start = X_;
+      step_directly();
+      X_ = start;
+    }
     Y_.resize(found->second.P.rows());
     Y_.noalias() = found->second.P * X_;
     X_.swap(Y_);
@@ -848,16 +979,7 @@ void Engine::interval_with_corners(double t, double tn, std::size_t e_begin, std
   }
   Composite& comp = composites_[key];
   ++comp.uses;
-  // Step directly.
-  for (const Step& st : steps) {
-    structure_ = st.structure;
-    advance(st.length);
-    if (st.next != st.structure || !st.refreshed.empty()) {
-      reseat(X_, Y_, st.structure, st.next, st.refreshed);
-      X_.swap(Y_);
-    }
-  }
-  structure_ = steps.back().next;
+  step_directly();
   if (comp.uses < 2 || comp.refused) return;
   // Second time this pattern: build its matrix, if every step is cheap by
   // the action (not stiff).
@@ -937,6 +1059,7 @@ void Engine::emit(double t) {
       throw NumericalFailure(msg);
     }
   }
+  if (dense_ && sum_.samples % static_cast<std::size_t>(dense_stride_) == 0) keep(t, false);
   sink_(t, values_.data(), values_.size());
   ++sum_.samples;
 }
@@ -977,6 +1100,20 @@ TransientSummary Engine::run() {
       return finish();
     }
     programs_.push_back(std::move(code));
+  }
+  if (opt_.dense_output) {
+    for (const Signal& s : opt_.trajectory_signals) {
+      std::vector<Instr> code;
+      std::string error;
+      if (!compiler_.compile(s.expr, code, error)) {
+        diags_.push_back(make_diagnostic(
+            Severity::Error, s.where,
+            "cannot evaluate signal " + s.name + (error.empty() ? "" : ": " + error)));
+        sum_.status = Status::BadInput;
+        return finish();
+      }
+      extra_programs_.push_back(std::move(code));
+    }
   }
   std::size_t depth = 1;
   for (const auto& p : programs_) depth = std::max(depth, p.size());
@@ -1024,6 +1161,11 @@ TransientSummary Engine::run() {
       --sum_.segments;
     }
     const std::vector<Event> events = build_events(t_end);
+    if (opt_.dense_output) {
+      dense_ = std::make_unique<DenseRecorder>();
+      dense_stride_ = dense_stride(n_samples, static_cast<long>(events.size()),
+                                   static_cast<long>(X_.size()), dense_budget_bytes());
+    }
     std::size_t e = 0;
     while (e < events.size() && events[e].t == 0) {
       handle(events[e++]);
@@ -1066,6 +1208,26 @@ TransientSummary Engine::run() {
       emit(t);
       if (opt_.progress && k % progress_every == 0)
         opt_.progress(static_cast<double>(k) / static_cast<double>(n_samples));
+    }
+    modal_checks();
+    if (dense_) {
+      DenseParts parts;
+      parts.end = t_end;
+      parts.every = opt_.every;
+      parts.instant = instant_;
+      parts.samples = n_samples;
+      for (const auto& key : dense_keys_) {
+        Segment& seg = segments_.at(key);
+        parts.segments.push_back({std::move(seg.sys), std::move(seg.O)});
+      }
+      segments_.clear();
+      parts.checkpoints = std::move(*dense_);
+      dense_.reset();
+      parts.programs = programs_;
+      parts.programs.insert(parts.programs.end(), extra_programs_.begin(), extra_programs_.end());
+      parts.bases = compiler_.bases.size();
+      parts.bracket_step = bracket_step_;
+      sum_.trajectory = make_dense_trajectory(std::move(parts));
     }
   } catch (const NumericalFailure& ex) {
     if (std::string(ex.what()).empty()) {

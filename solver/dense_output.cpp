@@ -1,0 +1,388 @@
+// Dense output: the engine's checkpoints as a Trajectory, and the modal view (see
+// dense_output.hpp for what this does and does not do).
+//
+// Partial steps: X(t) = expm(M h) X_c with h = t - t_c, by the same two means as the engine
+// (propagation.hpp): the action of the exponential on X_c when it is cheap (a few products),
+// a dense propagator when the step is stiff (the action would take more than ten products
+// per state) or when the same length recurs (the figures scan every sample interval at the
+// same fractions of the output step): propagators are cached per (segment, length rounded
+// to the time resolution), so a recurring fraction costs one matrix-vector product.
+//
+// Thread safety: every const query takes one internal mutex (the caches and the memo of the
+// last instant are shared), so a trajectory may be read from several threads; the calls are
+// serialised.
+#include "solver/dense_output.hpp"
+
+#include <Eigen/Eigenvalues>
+#include <algorithm>
+#include <atomic>
+#include <cmath>
+#include <cstdint>
+#include <exception>
+#include <limits>
+#include <mutex>
+#include <numbers>
+#include <unordered_map>
+
+namespace ringdown::solver {
+
+namespace {
+
+std::atomic<double> g_budget{kDenseBudgetBytes};
+
+// As in transient.cpp: a length taken this many times gets a dense propagator; a step whose
+// action takes more than this many products per state is stiff and gets one at once
+// (Al-Mohy & Higham 2011, sec. 6, and the engine's measurements).
+constexpr int kDenseAfterUses = 3;
+constexpr double kActionLimitPerState = 10.0;
+// Dense propagators the trajectory caches, bytes; the cache is emptied when it would grow
+// past this (common practice, no source).
+constexpr double kCacheBytes = 64.0 * 1024 * 1024;
+// V is treated as singular below this reciprocal condition estimate (Higham, Accuracy and
+// Stability of Numerical Algorithms, 2002, ch. 7; from memory; as modes.cpp).
+constexpr double kInvertibleRcond = 1e-14;
+
+struct Key {
+  int segment;
+  long long length;
+  bool operator==(const Key& o) const { return segment == o.segment && length == o.length; }
+};
+struct KeyHash {
+  std::size_t operator()(const Key& k) const {
+    return std::hash<long long>()(k.length) * 31u + std::hash<int>()(k.segment);
+  }
+};
+struct Entry {
+  Eigen::MatrixXd P;
+  TaylorPlan plan;
+  int uses = 0;
+  bool action_only = false;  // the dense propagator failed or costs more: stay with the action
+};
+
+class DenseTrajectory final : public Trajectory {
+ public:
+  explicit DenseTrajectory(DenseParts p) : p_(std::move(p)) {
+    OM_.reserve(p_.segments.size());
+    for (const DenseSegment& s : p_.segments) OM_.push_back(s.O * s.sys.M);
+    for (double t : p_.checkpoints.lt)
+      if (t > 0 && t < p_.end && (corners_.empty() || corners_.back() != t)) corners_.push_back(t);
+    std::size_t depth = 1;
+    used_.resize(p_.programs.size());
+    for (std::size_t k = 0; k < p_.programs.size(); ++k) {
+      depth = std::max(depth, p_.programs[k].size());
+      for (const Instr& in : p_.programs[k])
+        if (in.kind == Instr::Load &&
+            std::find(used_[k].begin(), used_[k].end(), in.base) == used_[k].end())
+          used_[k].push_back(in.base);
+    }
+    sv_.assign(depth, 0.0);
+    sd_.assign(depth, 0.0);
+    base_.assign(p_.bases, 0.0);
+    dbase_.assign(p_.bases, 0.0);
+    base_ok_.assign(p_.bases, 0);
+    dbase_ok_.assign(p_.bases, 0);
+  }
+
+  double start() const override { return 0; }
+  double end() const override { return p_.end; }
+  std::vector<double> corners() const override { return corners_; }
+  std::vector<double> sample_times() const override {
+    std::vector<double> out(static_cast<std::size_t>(p_.samples) + 1);
+    for (long k = 0; k <= p_.samples; ++k)
+      out[static_cast<std::size_t>(k)] = static_cast<double>(k) * p_.every;
+    return out;
+  }
+  double value(std::size_t k, double t) const override { return evaluate(k, t, false, false); }
+  double derivative(std::size_t k, double t) const override { return evaluate(k, t, false, true); }
+  double value_before(std::size_t k, double t) const override {
+    return evaluate(k, t, true, false);
+  }
+  double derivative_before(std::size_t k, double t) const override {
+    return evaluate(k, t, true, true);
+  }
+  double bracket_step() const override { return p_.bracket_step; }
+
+ private:
+  double evaluate(std::size_t k, double t, bool left, bool want_derivative) const {
+    std::lock_guard<std::mutex> lock(mutex_);
+    if (k >= p_.programs.size()) return std::numeric_limits<double>::quiet_NaN();
+    t = std::clamp(t, 0.0, p_.end);
+    if (!(memo_valid_ && memo_t_ == t && memo_left_ == left)) locate(t, left);
+    for (int b : used_[k]) {
+      const auto bi = static_cast<std::size_t>(b);
+      if (!base_ok_[bi]) {
+        base_[bi] = p_.segments[static_cast<std::size_t>(seg_)].O.row(b).dot(state());
+        base_ok_[bi] = 1;
+      }
+      if (want_derivative && !dbase_ok_[bi]) {
+        dbase_[bi] = OM_[static_cast<std::size_t>(seg_)].row(b).dot(state());
+        dbase_ok_[bi] = 1;
+      }
+    }
+    return want_derivative ? run_dual(p_.programs[k]) : run_program(p_.programs[k], base_.data(), sv_.data());
+  }
+
+  Eigen::Map<const Eigen::VectorXd> state() const {
+    return {x_ptr_, static_cast<Eigen::Index>(x_size_)};
+  }
+
+  // Sets the memo to X at t (left: the left limit), from the checkpoint before it.
+  void locate(double t, bool left) const {
+    memo_valid_ = true;
+    memo_t_ = t;
+    memo_left_ = left;
+    std::fill(base_ok_.begin(), base_ok_.end(), 0);
+    std::fill(dbase_ok_.begin(), dbase_ok_.end(), 0);
+    const DenseRecorder& c = p_.checkpoints;
+    if (left) {
+      const auto it = std::lower_bound(c.lt.begin(), c.lt.end(), t);
+      if (it != c.lt.end() && *it == t) {  // a stored left limit: exact, no propagation
+        const auto i = static_cast<std::size_t>(it - c.lt.begin());
+        seg_ = c.lsegment[i];
+        x_ptr_ = c.ldata.data() + c.loffset[i];
+        x_size_ = c.lsize[i];
+        return;
+      }
+    }
+    // Last checkpoint at or before t (strictly before for a left limit).
+    auto it = left ? std::lower_bound(c.t.begin(), c.t.end(), t)
+                   : std::upper_bound(c.t.begin(), c.t.end(), t);
+    std::size_t i = it == c.t.begin() ? 0 : static_cast<std::size_t>(it - c.t.begin()) - 1;
+    seg_ = c.segment[i];
+    const double* x = c.data.data() + c.offset[i];
+    const std::size_t n = c.size[i];
+    const double h = t - c.t[i];
+    if (!(h > 0)) {
+      x_ptr_ = x;
+      x_size_ = n;
+      return;
+    }
+    propagate(seg_, h, Eigen::Map<const Eigen::VectorXd>(x, static_cast<Eigen::Index>(n)));
+    x_ptr_ = y_.data();
+    x_size_ = n;
+  }
+
+  // y_ = expm(M h) x for segment g.
+  void propagate(int g, double h, const Eigen::Map<const Eigen::VectorXd>& x) const {
+    const AugmentedSystem& sys = p_.segments[static_cast<std::size_t>(g)].sys;
+    const Key key{g, std::llround(h / p_.instant)};
+    Entry& e = cache_[key];
+    x_.resize(x.size());
+    x_ = x;
+    y_.resize(x.size());
+    if (e.P.size() > 0) {
+      multiply(e.P, x_, y_);
+      return;
+    }
+    if (e.plan.m < 0) e.plan = plan_action(sys, h);
+    ++e.uses;
+    const auto N = static_cast<double>(sys.M.rows());
+    const bool stiff = static_cast<double>(e.plan.products()) > kActionLimitPerState * N;
+    bool dense = !e.action_only && (stiff || e.uses >= kDenseAfterUses);
+    if (dense && !stiff && sys.use_sparse &&
+        e.uses * action_flops(sys, e.plan) < dense_propagator_flops(sys, h) + e.uses * 2 * N * N)
+      dense = false;  // the sparse action stays cheaper at this many uses
+    if (dense) {
+      const double bytes = 8.0 * N * N;
+      if (cache_bytes_ + bytes > kCacheBytes) {
+        cache_.clear();
+        cache_bytes_ = 0;
+        Entry& fresh = cache_[key];
+        fresh.plan = plan_action(sys, h);
+        fresh.uses = kDenseAfterUses;
+        return propagate_dense(fresh, sys, h, bytes);
+      }
+      return propagate_dense(e, sys, h, bytes);
+    }
+    expm_action(sys, h, e.plan, x_, y_, w1_, w2_);
+  }
+
+  void propagate_dense(Entry& e, const AugmentedSystem& sys, double h, double bytes) const {
+    Eigen::MatrixXd P;
+    try {
+      P = dense_propagator(sys, h);
+    } catch (const std::exception&) {
+      P.resize(0, 0);
+    }
+    if (P.size() == 0 || !P.allFinite()) {  // fall back on the action, which is exact too
+      e.action_only = true;
+      expm_action(sys, h, e.plan, x_, y_, w1_, w2_);
+      return;
+    }
+    e.P = std::move(P);
+    cache_bytes_ += bytes;
+    multiply(e.P, x_, y_);
+  }
+
+  // The program with forward-mode derivatives: (a b)' = a' b + a b', (a / b)' =
+  // (a' b - a b') / b^2, (a^b)' = b a^(b-1) a' + a^b ln(a) b' (calculus).
+  double run_dual(const std::vector<Instr>& code) const {
+    int top = 0;
+    double* v = sv_.data();
+    double* d = sd_.data();
+    for (const Instr& in : code) {
+      switch (in.kind) {
+        case Instr::Load:
+          v[top] = base_[static_cast<std::size_t>(in.base)];
+          d[top++] = dbase_[static_cast<std::size_t>(in.base)];
+          break;
+        case Instr::Const: v[top] = in.value; d[top++] = 0; break;
+        case Instr::Neg: v[top - 1] = -v[top - 1]; d[top - 1] = -d[top - 1]; break;
+        case Instr::Add: --top; v[top - 1] += v[top]; d[top - 1] += d[top]; break;
+        case Instr::Sub: --top; v[top - 1] -= v[top]; d[top - 1] -= d[top]; break;
+        case Instr::Mul:
+          --top;
+          d[top - 1] = d[top - 1] * v[top] + v[top - 1] * d[top];
+          v[top - 1] *= v[top];
+          break;
+        case Instr::Div:
+          --top;
+          d[top - 1] = (d[top - 1] * v[top] - v[top - 1] * d[top]) / (v[top] * v[top]);
+          v[top - 1] /= v[top];
+          break;
+        case Instr::Pow: {
+          --top;
+          const double a = v[top - 1], b = v[top], da = d[top - 1], db = d[top];
+          const double p = std::pow(a, b);
+          double dp = da == 0 ? 0.0 : b * std::pow(a, b - 1) * da;
+          if (db != 0) dp += p * std::log(a) * db;
+          v[top - 1] = p;
+          d[top - 1] = dp;
+          break;
+        }
+      }
+    }
+    return top > 0 ? d[top - 1] : 0.0;
+  }
+
+  DenseParts p_;
+  std::vector<Eigen::MatrixXd> OM_;  // per segment: O M, the bases' derivatives
+  std::vector<double> corners_;
+  std::vector<std::vector<int>> used_;  // per signal: the bases its program loads
+
+  mutable std::mutex mutex_;
+  mutable std::unordered_map<Key, Entry, KeyHash> cache_;
+  mutable double cache_bytes_ = 0;
+  // Memo of the last instant asked (value and derivative of every signal at one t cost one
+  // propagation).
+  mutable bool memo_valid_ = false, memo_left_ = false;
+  mutable double memo_t_ = 0;
+  mutable int seg_ = 0;
+  mutable const double* x_ptr_ = nullptr;
+  mutable std::size_t x_size_ = 0;
+  mutable Eigen::VectorXd x_, y_, w1_, w2_;
+  mutable std::vector<double> base_, dbase_, sv_, sd_;
+  mutable std::vector<char> base_ok_, dbase_ok_;
+};
+
+}  // namespace
+
+double dense_budget_bytes() { return g_budget.load(); }
+void set_dense_budget_bytes(double bytes) { g_budget.store(bytes > 0 ? bytes : kDenseBudgetBytes); }
+
+long dense_stride(long samples, long events, long state_size, double budget) {
+  const double per = 8.0 * static_cast<double>(std::max(1L, state_size));
+  const double all = per * (static_cast<double>(samples) + 1 + 2.0 * static_cast<double>(events));
+  if (all <= budget) return 1;
+  const double room = budget - per * 2.0 * static_cast<double>(events);
+  if (room < per) return std::max(1L, samples + 1);  // events alone fill it: keep sample 0 only
+  const double s = std::ceil(per * (static_cast<double>(samples) + 1) / room);
+  return static_cast<long>(std::min(s, static_cast<double>(std::max(1L, samples + 1))));
+}
+
+void DenseRecorder::keep(double at, int seg, const Eigen::VectorXd& X, bool left_limit) {
+  const auto n = static_cast<std::size_t>(X.size());
+  if (left_limit) {
+    if (!lt.empty() && lt.back() == at) return;  // the first left limit at an instant counts
+    lt.push_back(at);
+    lsegment.push_back(seg);
+    loffset.push_back(ldata.size());
+    lsize.push_back(n);
+    ldata.insert(ldata.end(), X.data(), X.data() + n);
+    return;
+  }
+  if (!t.empty() && t.back() == at) {  // a later state at the same instant replaces it
+    data.resize(offset.back());
+    t.pop_back();
+    segment.pop_back();
+    offset.pop_back();
+    size.pop_back();
+  }
+  t.push_back(at);
+  segment.push_back(seg);
+  offset.push_back(data.size());
+  size.push_back(n);
+  data.insert(data.end(), X.data(), X.data() + n);
+}
+
+std::size_t DenseRecorder::bytes() const {
+  return sizeof(double) * (data.size() + ldata.size() + t.size() + lt.size()) +
+         (sizeof(int) + 2 * sizeof(std::size_t)) * (t.size() + lt.size());
+}
+
+std::shared_ptr<const Trajectory> make_dense_trajectory(DenseParts parts) {
+  return std::make_shared<const DenseTrajectory>(std::move(parts));
+}
+
+bool seen_modes(const Eigen::MatrixXd& A, const Eigen::MatrixXd& C11, const Eigen::MatrixXd& Px,
+                std::vector<SeenMode>& modes) {
+  modes.clear();
+  const Eigen::Index r = A.rows();
+  if (r == 0) return true;
+  Eigen::VectorXd d(r);
+  for (Eigen::Index i = 0; i < r; ++i) {
+    const double c = std::sqrt(std::abs(C11(i, i)));
+    d(i) = c > 0 && std::isfinite(c) ? c : 1.0;
+  }
+  const Eigen::MatrixXd Az = d.asDiagonal() * A * d.cwiseInverse().asDiagonal();
+  if (!Az.allFinite()) return false;
+  Eigen::EigenSolver<Eigen::MatrixXd> es(Az, true);
+  if (es.info() != Eigen::Success) return false;
+  const Eigen::MatrixXcd V = es.eigenvectors();
+  const Eigen::PartialPivLU<Eigen::MatrixXcd> lu(V);
+  // A defective A has no basis of eigenvectors: every mode then counts as fully visible
+  // wherever its right eigenvector reaches (the conservative reading).
+  const bool invertible = lu.rcond() >= kInvertibleRcond;
+  Eigen::VectorXd wnorm = Eigen::VectorXd::Ones(r);
+  if (invertible) {
+    const Eigen::MatrixXcd W = lu.inverse();
+    for (Eigen::Index i = 0; i < r; ++i) wnorm(i) = W.row(i).norm();
+  }
+  const Eigen::MatrixXcd CV = (Px * d.cwiseInverse().asDiagonal()).cast<std::complex<double>>() * V;
+  Eigen::MatrixXd raw(Px.rows(), r);
+  for (Eigen::Index b = 0; b < Px.rows(); ++b)
+    for (Eigen::Index i = 0; i < r; ++i) raw(b, i) = std::abs(CV(b, i)) * wnorm(i);
+  Eigen::VectorXd row_max = raw.rowwise().maxCoeff();
+  const auto& lam = es.eigenvalues();
+  for (Eigen::Index i = 0; i < r; ++i) {
+    if (lam(i).imag() < 0) continue;
+    SeenMode m;
+    m.pole = lam(i);
+    m.visibility.resize(static_cast<std::size_t>(Px.rows()));
+    for (Eigen::Index b = 0; b < Px.rows(); ++b)
+      m.visibility[static_cast<std::size_t>(b)] =
+          row_max(b) > 0 && std::isfinite(raw(b, i)) ? raw(b, i) / row_max(b) : (row_max(b) > 0 ? 1.0 : 0.0);
+    modes.push_back(std::move(m));
+  }
+  return true;
+}
+
+double oscillation_bound(const Eigen::MatrixXd& A, const Eigen::MatrixXd& C11) {
+  const Eigen::Index r = A.rows();
+  if (r == 0) return 0;
+  Eigen::VectorXd d(r);
+  for (Eigen::Index i = 0; i < r; ++i) {
+    const double c = std::sqrt(std::abs(C11(i, i)));
+    d(i) = c > 0 && std::isfinite(c) ? c : 1.0;
+  }
+  double best = 0;
+  for (Eigen::Index j = 0; j < r; ++j) {
+    double col = 0;
+    for (Eigen::Index i = 0; i < r; ++i)
+      col += std::abs(0.5 * (d(i) * A(i, j) / d(j) - d(j) * A(j, i) / d(i)));
+    best = std::max(best, col);
+  }
+  return best;
+}
+
+}  // namespace ringdown::solver
