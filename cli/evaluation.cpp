@@ -314,24 +314,29 @@ Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t st
     o.rating = *part.rated;
     o.unit = pr.call.unit;
     o.where = part.where;
-    const solver::FigureValue v = solver::evaluate_figure(pr.call, tr, pr.figure.signal, pr.figure.power);
-    o.ok = v.ok;
-    o.error = v.error;
-    o.value = v.value;
-    if (v.ok && pr.call.function == "peak") {
-      // The instant of the peak: tmax or tmin, whichever has the larger magnitude.
+    solver::FigureValue v;
+    if (pr.call.function == "peak") {
+      // The largest magnitude and its instant from tmax and tmin (two scans, not three).
       FigureCall tmax = pr.call, tmin = pr.call;
       tmax.function = "tmax";
       tmin.function = "tmin";
       tmax.unit = tmin.unit = Dimension::second();
       const solver::FigureValue a = solver::evaluate_figure(tmax, tr, pr.figure.signal, std::nullopt);
       const solver::FigureValue b = solver::evaluate_figure(tmin, tr, pr.figure.signal, std::nullopt);
+      v = a.ok ? b : a;
       if (a.ok && b.ok) {
         const double va = std::abs(tr.value(pr.figure.signal, a.value));
         const double vb = std::abs(tr.value(pr.figure.signal, b.value));
+        v.value = std::max(va, vb);
+        v.unit = pr.call.unit;
         o.instant = va >= vb ? a.value : b.value;
       }
+    } else {
+      v = solver::evaluate_figure(pr.call, tr, pr.figure.signal, pr.figure.power);
     }
+    o.ok = v.ok;
+    o.error = v.error;
+    o.value = v.value;
     o.exceeded = v.ok && std::abs(o.value) > o.rating;
     const std::string unit = o.unit ? unit_symbol(*o.unit) : std::string();
     if (!v.ok) {
@@ -409,22 +414,24 @@ Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t st
     Signal sig;
     sig.name = v.name;
     sig.unit = Dimension::volt();
-    const FigureCall peak = internal_call("peak", sig, Dimension::volt());
-    const FigureCall tmax = internal_call("tmax", sig, Dimension::second());
-    const FigureCall tmin = internal_call("tmin", sig, Dimension::second());
-    const FigureCall rms = internal_call("rms", sig, Dimension::volt());
-    const FigureCall mean = internal_call("mean", sig, Dimension::volt());
-    const solver::FigureValue pk = solver::evaluate_figure(peak, tr, v.signal, std::nullopt);
-    h.peak = pk.ok ? std::abs(pk.value) : sampled_peak;
-    const solver::FigureValue a = solver::evaluate_figure(tmax, tr, v.signal, std::nullopt);
-    const solver::FigureValue b = solver::evaluate_figure(tmin, tr, v.signal, std::nullopt);
-    if (a.ok && b.ok)
-      h.instant = std::abs(tr.value(v.signal, a.value)) >= std::abs(tr.value(v.signal, b.value)) ? a.value : b.value;
-    const solver::FigureValue r = solver::evaluate_figure(rms, tr, v.signal, std::nullopt);
-    const solver::FigureValue m = solver::evaluate_figure(mean, tr, v.signal, std::nullopt);
-    h.ac_rms = r.ok && m.ok ? std::sqrt(std::max(0.0, r.value * r.value - m.value * m.value)) : sampled_ac;
+    // The exact largest magnitude: at tmax or tmin (two scans; peak would be a third).
+    const solver::FigureValue a = solver::evaluate_figure(internal_call("tmax", sig, Dimension::second()), tr, v.signal, std::nullopt);
+    const solver::FigureValue b = solver::evaluate_figure(internal_call("tmin", sig, Dimension::second()), tr, v.signal, std::nullopt);
+    h.peak = sampled_peak;
+    if (a.ok && b.ok) {
+      const double va = std::abs(tr.value(v.signal, a.value)), vb = std::abs(tr.value(v.signal, b.value));
+      h.peak = std::max(va, vb);
+      h.instant = va >= vb ? a.value : b.value;
+    }
     h.over_dc = h.peak > safety_.dc;
-    h.over_ac = h.ac_rms > safety_.ac_rms;
+    h.ac_rms = sampled_ac;
+    // The AC rms decides only when the peak does not: then compute it exactly.
+    if (!h.over_dc && sampled_ac >= kScreenMargin * safety_.ac_rms) {
+      const solver::FigureValue r = solver::evaluate_figure(internal_call("rms", sig, Dimension::volt()), tr, v.signal, std::nullopt);
+      const solver::FigureValue m = solver::evaluate_figure(internal_call("mean", sig, Dimension::volt()), tr, v.signal, std::nullopt);
+      if (r.ok && m.ok) h.ac_rms = std::sqrt(std::max(0.0, r.value * r.value - m.value * m.value));
+      h.over_ac = h.ac_rms > safety_.ac_rms;
+    }
     if (h.over_dc || h.over_ac) s.points.push_back(h);
   }
   std::sort(s.points.begin(), s.points.end(),
