@@ -474,6 +474,7 @@ const GaussRule& rule16() {
 struct Quadrature {
   const std::function<double(double)>& f;
   double abs_total = 0;  // running integral of |f|: the scale of the acceptance test
+  double floor = 0;      // a first estimate of the whole window's integral of |f|
   bool converged = true;
 
   double interval(double x0, double x1, int depth) {
@@ -488,7 +489,7 @@ struct Quadrature {
     i8 *= half;
     i16 *= half;
     a16 *= std::abs(half);
-    const double scale = std::max(abs_total + a16, std::numeric_limits<double>::min());
+    const double scale = std::max({abs_total + a16, floor, std::numeric_limits<double>::min()});
     if (std::abs(i16 - i8) <= kIntegralTolerance * scale || depth >= kMaxQuadratureDepth) {
       if (std::abs(i16 - i8) > kIntegralTolerance * scale) converged = false;
       abs_total += a16;
@@ -510,6 +511,12 @@ double integrate(const std::function<double(double)>& f, const Trajectory& tr, d
   std::sort(breaks.begin(), breaks.end());
   breaks.erase(std::unique(breaks.begin(), breaks.end()), breaks.end());
   Quadrature q{f};
+  // The scale of the acceptance test from the start: the midpoint rule for the integral of
+  // |f| over the breaks. Without it an early stretch where f is rounding noise around 0 (a
+  // part that carries no power until a switch opens) would be refined to the depth limit
+  // everywhere, its noise never agreeing to 1e-12 of itself.
+  for (std::size_t k = 0; k + 1 < breaks.size(); ++k)
+    q.floor += std::abs(f(0.5 * (breaks[k] + breaks[k + 1]))) * (breaks[k + 1] - breaks[k]);
   double total = 0;
   for (std::size_t k = 0; k + 1 < breaks.size(); ++k) total += q.interval(breaks[k], breaks[k + 1], 0);
   converged = q.converged;
