@@ -1,12 +1,15 @@
 // Dense output: the engine's checkpoints as a Trajectory, and the modal view (see
 // dense_output.hpp for what this does and does not do).
 //
-// Partial steps: X(t) = expm(M h) X_c with h = t - t_c, by the same two means as the engine
-// (propagation.hpp): the action of the exponential on X_c when it is cheap (a few products),
-// a dense propagator when the step is stiff (the action would take more than ten products
-// per state) or when the same length recurs (the figures scan every sample interval at the
-// same fractions of the output step): propagators are cached per (segment, length rounded
-// to the time resolution), so a recurring fraction costs one matrix-vector product.
+// Partial steps: the value at t = t_c + h needs only the output rows carried over h,
+// O expm(M h) X_c. A length met once is stepped by the action of the exponential on X_c (a
+// few products, propagation.hpp); a length met again (the figures scan every sample
+// interval at the same fractions of the output step, Gauss nodes included) gets its rows
+// O expm(M h) and O M expm(M h) cached per (segment, length rounded to the time
+// resolution): by actions of the transposed exponential on each row, or from a dense
+// propagator when the step is stiff (the action would take more than ten products per
+// state) or the rows are many. A recurring instant then costs one product of length N per
+// base signal, not an N x N product.
 //
 // Thread safety: every const query takes one internal mutex (the caches and the memo of the
 // last instant are shared), so a trajectory may be read from several threads; the calls are
@@ -30,13 +33,13 @@ namespace {
 
 std::atomic<double> g_budget{kDenseBudgetBytes};
 
-// As in transient.cpp: a length taken this many times gets a dense propagator; a step whose
-// action takes more than this many products per state is stiff and gets one at once
-// (Al-Mohy & Higham 2011, sec. 6, and the engine's measurements).
-constexpr int kDenseAfterUses = 3;
+// A length taken this many times gets its output rows O expm(M h) (a step whose action takes
+// more than this many products per state is stiff and gets them at once from a dense
+// propagator; Al-Mohy & Higham 2011, sec. 6, and the engine's measurements).
+constexpr int kRowsAfterUses = 2;
 constexpr double kActionLimitPerState = 10.0;
-// Dense propagators the trajectory caches, bytes; the cache is emptied when it would grow
-// past this (common practice, no source).
+// Output rows the trajectory caches, bytes; the cache is emptied when it would grow past
+// this (common practice, no source).
 constexpr double kCacheBytes = 64.0 * 1024 * 1024;
 // V is treated as singular below this reciprocal condition estimate (Higham, Accuracy and
 // Stability of Numerical Algorithms, 2002, ch. 7; from memory; as modes.cpp).
@@ -53,16 +56,39 @@ struct KeyHash {
   }
 };
 struct Entry {
-  Eigen::MatrixXd P;
+  // The output rows carried over the length: O expm(M h) and O M expm(M h), so that a
+  // recurring length costs one small product per base signal (no state at t is formed).
+  Eigen::MatrixXd OP, OMP;
   TaylorPlan plan;
   int uses = 0;
-  bool action_only = false;  // the dense propagator failed or costs more: stay with the action
+  bool action_only = false;  // the rows could not be formed: the action on X every time
 };
+
+// The transposed system: expm(M^T h) u = expm(M h)^T u, by the same action. Its balanced
+// form is the transpose of M's with the reciprocal scale (D^-1 M D)^T = D M^T D^-1.
+AugmentedSystem transposed(const AugmentedSystem& sys) {
+  AugmentedSystem t;
+  t.states = sys.states;
+  t.M = sys.M.transpose();
+  t.balanced = sys.balanced.transpose();
+  t.scale = sys.scale.cwiseInverse();
+  t.shift = sys.shift;
+  Eigen::MatrixXd shifted = t.balanced;
+  shifted.diagonal().array() -= t.shift;
+  t.shifted_norm1 = shifted.rows() > 0 ? shifted.cwiseAbs().colwise().sum().maxCoeff() : 0.0;
+  t.use_sparse = sys.use_sparse;
+  if (t.use_sparse) {
+    t.sparse_shifted = shifted.sparseView(0.0, 0.0);
+    t.sparse_shifted.makeCompressed();
+  }
+  return t;
+}
 
 class DenseTrajectory final : public Trajectory {
  public:
   explicit DenseTrajectory(DenseParts p) : p_(std::move(p)) {
     OM_.reserve(p_.segments.size());
+    trans_.resize(p_.segments.size());
     for (const DenseSegment& s : p_.segments) OM_.push_back(s.O * s.sys.M);
     for (double t : p_.checkpoints.lt)
       if (t > 0 && t < p_.end && (corners_.empty() || corners_.back() != t)) corners_.push_back(t);
@@ -111,11 +137,11 @@ class DenseTrajectory final : public Trajectory {
     for (int b : used_[k]) {
       const auto bi = static_cast<std::size_t>(b);
       if (!base_ok_[bi]) {
-        base_[bi] = p_.segments[static_cast<std::size_t>(seg_)].O.row(b).dot(state());
+        base_[bi] = rows_->row(b).dot(state());
         base_ok_[bi] = 1;
       }
       if (want_derivative && !dbase_ok_[bi]) {
-        dbase_[bi] = OM_[static_cast<std::size_t>(seg_)].row(b).dot(state());
+        dbase_[bi] = drows_->row(b).dot(state());
         dbase_ok_[bi] = 1;
       }
     }
@@ -141,6 +167,8 @@ class DenseTrajectory final : public Trajectory {
         seg_ = c.lsegment[i];
         x_ptr_ = c.ldata.data() + c.loffset[i];
         x_size_ = c.lsize[i];
+        rows_ = &p_.segments[static_cast<std::size_t>(seg_)].O;
+        drows_ = &OM_[static_cast<std::size_t>(seg_)];
         return;
       }
     }
@@ -152,66 +180,79 @@ class DenseTrajectory final : public Trajectory {
     const double* x = c.data.data() + c.offset[i];
     const std::size_t n = c.size[i];
     const double h = t - c.t[i];
-    if (!(h > 0)) {
-      x_ptr_ = x;
-      x_size_ = n;
-      return;
-    }
-    propagate(seg_, h, Eigen::Map<const Eigen::VectorXd>(x, static_cast<Eigen::Index>(n)));
-    x_ptr_ = y_.data();
+    x_ptr_ = x;
     x_size_ = n;
+    rows_ = &p_.segments[static_cast<std::size_t>(seg_)].O;
+    drows_ = &OM_[static_cast<std::size_t>(seg_)];
+    if (!(h > 0)) return;
+    propagate(seg_, h, Eigen::Map<const Eigen::VectorXd>(x, static_cast<Eigen::Index>(n)));
   }
 
-  // y_ = expm(M h) x for segment g.
+  // Carries the checkpoint x over h in segment g: either the rows move (rows_ = O expm(M h),
+  // x stays the checkpoint) or the state does (x_ptr_ = expm(M h) x).
   void propagate(int g, double h, const Eigen::Map<const Eigen::VectorXd>& x) const {
-    const AugmentedSystem& sys = p_.segments[static_cast<std::size_t>(g)].sys;
+    const DenseSegment& seg = p_.segments[static_cast<std::size_t>(g)];
+    const AugmentedSystem& sys = seg.sys;
     const Key key{g, std::llround(h / p_.instant)};
-    Entry& e = cache_[key];
+    Entry* e = &cache_[key];
+    if (e->OP.size() > 0) {
+      rows_ = &e->OP;
+      drows_ = &e->OMP;
+      return;
+    }
+    if (e->plan.m < 0) e->plan = plan_action(sys, h);
+    ++e->uses;
+    const auto N = static_cast<double>(sys.M.rows());
+    const auto nb = static_cast<double>(seg.O.rows());
+    const bool stiff = static_cast<double>(e->plan.products()) > kActionLimitPerState * N;
+    if (!e->action_only && (stiff || e->uses >= kRowsAfterUses)) {
+      const double bytes = 16.0 * nb * N;
+      if (cache_bytes_ + bytes > kCacheBytes) {
+        const Entry keep = *e;
+        cache_.clear();
+        cache_bytes_ = 0;
+        e = &cache_[key];
+        *e = keep;
+      }
+      // The rows by actions of the transposed exponential on each row (nb actions), or from
+      // a dense propagator when the step is stiff or there are many rows.
+      const bool by_actions =
+          !stiff && nb * action_flops(sys, e->plan) < dense_propagator_flops(sys, h);
+      if (by_actions) {
+        if (!trans_[static_cast<std::size_t>(g)])
+          trans_[static_cast<std::size_t>(g)] = std::make_unique<AugmentedSystem>(transposed(sys));
+        const AugmentedSystem& ts = *trans_[static_cast<std::size_t>(g)];
+        const TaylorPlan plan = plan_action(ts, h);
+        e->OP.resize(seg.O.rows(), seg.O.cols());
+        for (Eigen::Index b = 0; b < seg.O.rows(); ++b) {
+          x_ = seg.O.row(b).transpose();
+          expm_action(ts, h, plan, x_, y_, w1_, w2_);
+          e->OP.row(b) = y_.transpose();
+        }
+      } else {
+        Eigen::MatrixXd P;
+        try {
+          P = dense_propagator(sys, h);
+        } catch (const std::exception&) {
+          P.resize(0, 0);
+        }
+        if (P.size() > 0 && P.allFinite()) e->OP.noalias() = seg.O * P;
+      }
+      if (e->OP.size() > 0 && e->OP.allFinite()) {
+        e->OMP.noalias() = e->OP * sys.M;  // O expm(Mh) M = O M expm(Mh): they commute
+        cache_bytes_ += bytes;
+        rows_ = &e->OP;
+        drows_ = &e->OMP;
+        return;
+      }
+      e->OP.resize(0, 0);
+      e->action_only = true;  // fall back on the action, which is exact too
+    }
     x_.resize(x.size());
     x_ = x;
     y_.resize(x.size());
-    if (e.P.size() > 0) {
-      multiply(e.P, x_, y_);
-      return;
-    }
-    if (e.plan.m < 0) e.plan = plan_action(sys, h);
-    ++e.uses;
-    const auto N = static_cast<double>(sys.M.rows());
-    const bool stiff = static_cast<double>(e.plan.products()) > kActionLimitPerState * N;
-    bool dense = !e.action_only && (stiff || e.uses >= kDenseAfterUses);
-    if (dense && !stiff && sys.use_sparse &&
-        e.uses * action_flops(sys, e.plan) < dense_propagator_flops(sys, h) + e.uses * 2 * N * N)
-      dense = false;  // the sparse action stays cheaper at this many uses
-    if (dense) {
-      const double bytes = 8.0 * N * N;
-      if (cache_bytes_ + bytes > kCacheBytes) {
-        cache_.clear();
-        cache_bytes_ = 0;
-        Entry& fresh = cache_[key];
-        fresh.plan = plan_action(sys, h);
-        fresh.uses = kDenseAfterUses;
-        return propagate_dense(fresh, sys, h, bytes);
-      }
-      return propagate_dense(e, sys, h, bytes);
-    }
-    expm_action(sys, h, e.plan, x_, y_, w1_, w2_);
-  }
-
-  void propagate_dense(Entry& e, const AugmentedSystem& sys, double h, double bytes) const {
-    Eigen::MatrixXd P;
-    try {
-      P = dense_propagator(sys, h);
-    } catch (const std::exception&) {
-      P.resize(0, 0);
-    }
-    if (P.size() == 0 || !P.allFinite()) {  // fall back on the action, which is exact too
-      e.action_only = true;
-      expm_action(sys, h, e.plan, x_, y_, w1_, w2_);
-      return;
-    }
-    e.P = std::move(P);
-    cache_bytes_ += bytes;
-    multiply(e.P, x_, y_);
+    expm_action(sys, h, e->plan, x_, y_, w1_, w2_);
+    x_ptr_ = y_.data();
   }
 
   // The program with forward-mode derivatives: (a b)' = a' b + a b', (a / b)' =
@@ -262,6 +303,7 @@ class DenseTrajectory final : public Trajectory {
 
   mutable std::mutex mutex_;
   mutable std::unordered_map<Key, Entry, KeyHash> cache_;
+  mutable std::vector<std::unique_ptr<AugmentedSystem>> trans_;  // per segment, when needed
   mutable double cache_bytes_ = 0;
   // Memo of the last instant asked (value and derivative of every signal at one t cost one
   // propagation).
@@ -269,6 +311,8 @@ class DenseTrajectory final : public Trajectory {
   mutable double memo_t_ = 0;
   mutable int seg_ = 0;
   mutable const double* x_ptr_ = nullptr;
+  mutable const Eigen::MatrixXd* rows_ = nullptr;   // base = rows_ x
+  mutable const Eigen::MatrixXd* drows_ = nullptr;  // base' = drows_ x
   mutable std::size_t x_size_ = 0;
   mutable Eigen::VectorXd x_, y_, w1_, w2_;
   mutable std::vector<double> base_, dbase_, sv_, sd_;

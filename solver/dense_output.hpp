@@ -89,7 +89,8 @@ bool seen_modes(const Eigen::MatrixXd& A, const Eigen::MatrixXd& C11, const Eige
 
 // Bendixson's bound (I. Bendixson, Acta Math. 25, 1902): every eigenvalue's |Im| is at most
 // the spectral radius of the skew part of D A D^-1 (D = diag(sqrt|C11_ii|)), itself at most
-// that part's 1-norm. O(r^2); 0 for an RC network (symmetric in those coordinates).
+// that part's 1-norm. O(r^2); 0 for an RC network whose C11 is diagonal (A is then
+// symmetric in those coordinates).
 double oscillation_bound(const Eigen::MatrixXd& A, const Eigen::MatrixXd& C11);
 
 }  // namespace ringdown::solver

@@ -6,7 +6,10 @@
 // waveform corner and switch instant -> on each interval the augmented
 // system [x_s; w] stepped by cached dense propagators (or, for step lengths
 // met once, the action of the exponential on the vector) -> at t = k*every
-// the recorded signals evaluated from x, x' and u and streamed to the sink.
+// the recorded signals evaluated from x, x' and u and streamed to the sink;
+// with options.dense_output, checkpoints of X at the samples and on both sides of
+// every event for the trajectory (dense_output.hpp); at the end, the output-step
+// and run-length warnings from the natural modes (NETLIST.md section 7).
 //
 // Not here: `formula` sources (rejected with a diagnostic until the fitting
 // engine lands), figures, writers, the sparse engine.

@@ -147,6 +147,24 @@ TEST(FigureSecondOrderWindow, WindowMaxEqualsClosedFormInsideIt) {
   EXPECT_NEAR(value_of(tr, c), y_end, 1e-14);
 }
 
+TEST(FigureSecondOrderCoarse, TenSamplesPerPeriodWithTheBracketStepUseTheSamplesAlone) {
+  // Exactly 10 samples per ring period and bracket_step = period / 10: one subinterval per
+  // sample interval (the grid resolves the ringing), and the peak, found by Brent's method
+  // between the samples, is still 1 + Mp at tp = pi / wd (Ogata, Modern Control Engineering;
+  // from memory), to 1e-9.
+  const SecondOrder so{0.15};
+  const double z = so.zeta, w = so.w0, d = so.wd(), k = z / std::sqrt(1 - z * z);
+  const double period = so.ring_period();
+  const Analytic tr(
+      40 / (z * w), period / 10,  // 40 time constants: final is 1 to e^-40
+      {[=](double t) { return 1 - std::exp(-z * w * t) * (std::cos(d * t) + k * std::sin(d * t)); }},
+      {[=](double t) { return w / std::sqrt(1 - z * z) * std::exp(-z * w * t) * std::sin(d * t); }},
+      {}, period / 10);
+  EXPECT_NEAR(value_of(tr, call("max")), 1 + so.overshoot(), 1e-9);
+  EXPECT_NEAR(value_of(tr, call("tmax")), kPi / d, 1e-9 * kPi / d);
+  EXPECT_NEAR(value_of(tr, call("ringfreq")), d / (2 * kPi), 1e-9 * d);
+}
+
 // First-order step y = 1 - exp(-t/tau).
 Analytic first_order(double tau) {
   return Analytic(40 * tau, tau / 3.3, {[=](double t) { return 1 - std::exp(-t / tau); }},
