@@ -7,6 +7,7 @@
 #include <memory>
 
 #include "parser/units.hpp"
+#include "solver/modes.hpp"
 #include "solver/transient.hpp"
 
 namespace ringdown::cli {
@@ -126,6 +127,46 @@ constexpr double kEnergyBudget = 2e8;
 // 1e-12 and the quadrature 1e-12 (issue 3 measurements), so 1e-6 means something is wrong.
 constexpr double kEnergyWarn = 1e-6;
 constexpr std::size_t kEnergyElementLimit = 5000;
+// ringfreq/damping against the natural modes: a mode "matches" when its damped frequency is
+// within this fraction of the measured ring frequency (the log decrement of a single mode is
+// exact; a 2 % mismatch means another mode or the source shapes the ringing; common practice,
+// no source).
+constexpr double kModeMatch = 0.02;
+
+// The cross-check of NETLIST.md's ringfreq and damping against the dominant natural mode: the
+// oscillating mode (over every switch configuration) nearest in damped frequency. Adds a note
+// to the figure: which mode it is, or that none is near.
+void cross_check_ringing(const FigureCall& call, solver::FigureValue& v,
+                         const std::optional<solver::ModesResult>& modes) {
+  if (!v.ok || !modes || !modes->ok || !v.note.empty()) return;
+  if (call.function != "ringfreq" && call.function != "damping") return;
+  const solver::Mode* best = nullptr;
+  double best_gap = std::numeric_limits<double>::infinity();
+  for (const auto& cfg : modes->configurations)
+    for (const auto& m : cfg.modes) {
+      if (m.kind != solver::ModeKind::Oscillating) continue;
+      // ringfreq compares frequencies; damping compares damping ratios of the modes that
+      // ring at all, and names the one nearest.
+      const double gap = call.function == "ringfreq" ? std::abs(m.damped_hz - v.value) / std::max(v.value, 1e-300)
+                                                     : std::abs(m.damping_ratio - v.value);
+      if (gap < best_gap) {
+        best_gap = gap;
+        best = &m;
+      }
+    }
+  if (!best) {
+    v.note = "no oscillating natural mode to compare with";
+    return;
+  }
+  const std::string mode = format_si(best->damped_hz, "Hz") + ", zeta " + format_si(best->damping_ratio, "", 3);
+  if (call.function == "ringfreq")
+    v.note = best_gap <= kModeMatch ? "natural mode at " + mode
+                                    : "nearest natural mode " + mode + ": the ringing mixes modes or follows a source";
+  else
+    v.note = best_gap <= kModeMatch * std::max(best->damping_ratio, 0.05)
+                 ? "natural mode at " + mode
+                 : "nearest natural mode " + mode;
+}
 
 }  // namespace
 
@@ -281,6 +322,19 @@ EvaluationPlan::PlannedFigure EvaluationPlan::plan_figure(const FigureCall& call
 
 Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t states) const {
   Evaluation out;
+  // Natural modes, for the ringfreq/damping cross-check, when a figure asks for them.
+  std::optional<solver::ModesResult> modes;
+  {
+    bool ringing = false;
+    for (const Report& r : circuit_.reports)
+      ringing = ringing || r.figure.function == "ringfreq" || r.figure.function == "damping";
+    for (const Expect& e : circuit_.expects)
+      ringing = ringing || e.figure.function == "ringfreq" || e.figure.function == "damping";
+    if (ringing) {
+      Diagnostics ignored;  // the run itself already reported the circuit's problems
+      modes = solver::compute_modes(circuit_, solver::ModesOptions{}, ignored);
+    }
+  }
   for (std::size_t i = 0; i < circuit_.reports.size(); ++i) {
     const Report& r = circuit_.reports[i];
     FigureOutcome o;
@@ -288,6 +342,7 @@ Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t st
     o.call = &r.figure;
     o.where = r.where;
     o.value = solver::evaluate_figure(r.figure, tr, report_plan_[i].signal, report_plan_[i].power);
+    cross_check_ringing(r.figure, o.value, modes);
     if (!o.value.ok)
       out.diagnostics.push_back(make_diagnostic(Severity::Error, r.where,
                                                 "report " + r.name + ": " + o.value.error));
@@ -298,6 +353,7 @@ Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t st
     ExpectOutcome o;
     o.expect = &e;
     o.value = solver::evaluate_figure(e.figure, tr, expect_plan_[i].signal, expect_plan_[i].power);
+    cross_check_ringing(e.figure, o.value, modes);
     o.pass = o.value.ok && solver::expect_holds(e, o.value.value);
     if (!o.value.ok)
       out.diagnostics.push_back(make_diagnostic(Severity::Error, e.where,
