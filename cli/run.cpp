@@ -207,9 +207,7 @@ std::vector<std::string> split_signal_list(const std::string& text) {
   return out;
 }
 
-namespace {
-
-// Flags shared by run and check (CLI.md "Options shared by run, check, compare, freq").
+// Flags shared by run, check and compare (CLI.md "Options shared by run, check, compare, freq").
 void add_shared_flags(CLI::App* cmd, RunOptions& o) {
   cmd->add_option("--set", o.set, "override a parameter (repeatable)")
       ->type_name("NAME=VALUE")
@@ -230,6 +228,8 @@ void add_shared_flags(CLI::App* cmd, RunOptions& o) {
   cmd->add_flag("--no-progress", o.no_progress, "no progress bar");
   cmd->add_flag("--strict", o.strict, "treat warnings as errors (exit 2)");
 }
+
+namespace {
 
 enum class Mode { Run, Check };
 
@@ -298,6 +298,29 @@ bool write_json_file(const std::string& path, const nlohmann::json& j) {
   return true;
 }
 
+// --set and --record into the loader's options; false (printed) on a malformed entry.
+bool build_load_options(const RunOptions& options, LoadOptions& load_options) {
+  for (const std::string& entry : options.set) {
+    const auto eq = entry.find('=');
+    if (eq == std::string::npos || trim(entry.substr(0, eq)).empty() ||
+        trim(entry.substr(eq + 1)).empty()) {
+      print_error("--set takes NAME=VALUE, got '" + entry + "'", "for example --set Rsn=47 or --set Csw=100pF");
+      return false;
+    }
+    load_options.overrides.emplace_back(trim(entry.substr(0, eq)), trim(entry.substr(eq + 1)));
+  }
+  for (const std::string& list : options.record) {
+    for (const std::string& s : split_signal_list(list)) {
+      if (s.empty()) {
+        print_error("--record: empty signal name in '" + list + "'", "separate names with single commas: --record drain,Lc.i");
+        return false;
+      }
+      load_options.records.push_back(s);
+    }
+  }
+  return true;
+}
+
 FileOutcome execute(const RunOptions& options, const Loader& load, Mode mode) {
   FileOutcome out;
   const auto started = std::chrono::steady_clock::now();
@@ -354,24 +377,7 @@ FileOutcome execute(const RunOptions& options, const Loader& load, Mode mode) {
   if (!options.tol.empty() && !parse_tol(options.tol, formula_tolerance))
     return refuse(kExitBadInput, {}, "bad --tol");
   LoadOptions load_options;
-  for (const std::string& entry : options.set) {
-    const auto eq = entry.find('=');
-    if (eq == std::string::npos || trim(entry.substr(0, eq)).empty() ||
-        trim(entry.substr(eq + 1)).empty()) {
-      print_error("--set takes NAME=VALUE, got '" + entry + "'", "for example --set Rsn=47 or --set Csw=100pF");
-      return refuse(kExitBadInput, {}, "bad --set");
-    }
-    load_options.overrides.emplace_back(trim(entry.substr(0, eq)), trim(entry.substr(eq + 1)));
-  }
-  for (const std::string& list : options.record) {
-    for (const std::string& s : split_signal_list(list)) {
-      if (s.empty()) {
-        print_error("--record: empty signal name in '" + list + "'", "separate names with single commas: --record drain,Lc.i");
-        return refuse(kExitBadInput, {}, "bad --record");
-      }
-      load_options.records.push_back(s);
-    }
-  }
+  if (!build_load_options(options, load_options)) return refuse(kExitBadInput, {}, "bad --set or --record");
 
   // --- Circuit ------------------------------------------------------------------
   LoadResult loaded = load(load_options);
@@ -646,6 +652,68 @@ CLI::App* setup_check(CLI::App& app, CheckOptions& o) {
   cmd->add_option("--junit", o.junit, "write a JUnit XML report, one test case per expect")
       ->type_name("PATH");
   return cmd;
+}
+
+SimulatedFile simulate_file(const RunOptions& options) {
+  SimulatedFile out;
+  out.exit_code = kExitBadInput;
+  if (!readable_or_report(options.file)) return out;
+  SafetyOptions safety;
+  safety.accept_risk = options.accept_mains_risk;
+  if (!options.elv.empty() && !parse_elv(options.elv, safety)) return out;
+  double tol = 1e-9;
+  if (!options.tol.empty() && !parse_tol(options.tol, tol)) return out;
+  LoadOptions load_options;
+  if (!build_load_options(options, load_options)) return out;
+  out.loaded = std::make_unique<LoadResult>(load_file(options.file, load_options));
+  if (!out.loaded->ok()) {
+    print_diagnostics(out.loaded->diagnostics, options.strict);
+    return out;
+  }
+  const Circuit& circuit = *out.loaded->circuit;
+  Diagnostics warnings;
+  for (const Diagnostic& d : out.loaded->diagnostics)
+    if (d.severity != Severity::Error) warnings.push_back(d);
+  const std::optional<TransientPlan> plan = plan_transient(options, circuit);
+  if (!plan) return out;
+  out.until = plan->until;
+  out.every = plan->every;
+  out.plan = std::make_unique<EvaluationPlan>(circuit, circuit.records, safety);
+  solver::TransientOptions engine;
+  engine.until = plan->until;
+  engine.every = plan->every;
+  engine.initial_dc = plan->initial_dc;
+  engine.strict = options.strict;
+  engine.dense_output = true;
+  engine.trajectory_signals = out.plan->extra_signals();
+  engine.formula_tolerance = tol;
+  out.values.resize(circuit.records.size());
+  bool finite = true;
+  const solver::SampleSink sink = [&](double t, const double* v, std::size_t n) {
+    out.time.push_back(t);
+    for (std::size_t i = 0; i < n; ++i) {
+      finite = finite && std::isfinite(v[i]);
+      out.values[i].push_back(v[i]);
+    }
+  };
+  Diagnostics engine_diagnostics;
+  out.summary = solver::run_transient(circuit, circuit.records, engine, sink, engine_diagnostics);
+  for (const Diagnostic& d : engine_diagnostics) warnings.push_back(d);
+  if (out.summary.status != solver::Status::Ok || !finite || !out.summary.trajectory) {
+    print_diagnostics(warnings, options.strict);
+    out.exit_code = out.summary.status == solver::Status::BadInput ? kExitBadInput : kExitNumerical;
+    return out;
+  }
+  out.evaluation = out.plan->evaluate(*out.summary.trajectory, out.summary.states);
+  for (const Diagnostic& d : out.evaluation.diagnostics) warnings.push_back(d);
+  print_diagnostics(warnings, options.strict);
+  if (out.evaluation.safety.hazardous && !safety.accept_risk)
+    std::fputs(caution_text(out.evaluation.safety).c_str(), stderr);
+  out.exit_code = kExitOk;
+  for (const Diagnostic& d : warnings)
+    if (d.severity == Severity::Error || (options.strict && d.severity == Severity::Warning))
+      out.exit_code = kExitBadInput;
+  return out;
 }
 
 int run_run(const RunOptions& options) {

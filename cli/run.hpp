@@ -8,10 +8,13 @@
 #pragma once
 
 #include <functional>
+#include <memory>
 #include <string>
 #include <vector>
 
+#include "cli/evaluation.hpp"
 #include "parser/load.hpp"
+#include "solver/transient.hpp"
 
 namespace CLI {
 class App;
@@ -38,6 +41,9 @@ struct RunOptions {
 };
 
 CLI::App* setup_run(CLI::App& app, RunOptions& options);
+// The flags run shares with check and compare (--set, --until, --every, --record, --json,
+// --tol, --elv, --accept-mains-risk, --quiet, --no-progress, --strict).
+void add_shared_flags(CLI::App* command, RunOptions& options);
 int run_run(const RunOptions& options);
 
 // `ringdown check FILE... [--junit PATH]`: the options of run that make sense for
@@ -54,6 +60,21 @@ int run_check(const CheckOptions& options);
 // `load` reads and elaborates it with the given options.
 using Loader = std::function<LoadResult(const LoadOptions&)>;
 int run_loaded(const RunOptions& options, const Loader& load);
+
+// One file run for commands built on run (compare): the circuit, the summary with the exact
+// trajectory, the figures, and the recorded signals at the samples. Warnings, errors and the
+// mains caution are printed; exit_code is kExitOk when everything could be computed.
+struct SimulatedFile {
+  int exit_code = 0;
+  std::unique_ptr<LoadResult> loaded;  // stable address: plan and evaluation point into it
+  double until = 0, every = 0;
+  solver::TransientSummary summary;
+  std::unique_ptr<EvaluationPlan> plan;
+  Evaluation evaluation;
+  std::vector<double> time;
+  std::vector<std::vector<double>> values;  // per recorded signal, at `time`
+};
+SimulatedFile simulate_file(const RunOptions& options);
 
 // "a, b(c, d), e" -> {"a", "b(c, d)", "e"}: splits at commas outside
 // parentheses and trims blanks (a recorded signal may be an expression).
