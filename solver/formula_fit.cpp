@@ -470,23 +470,35 @@ FormulaFitResult fit_formula(const WaveformPtr& formula, const FormulaFitOptions
   out.pieces = knot_times.size() - 1;
   out.error = out.peak > 0 ? worst / out.peak : 0.0;
   out.waveform = std::make_shared<FittedFormula>(formula, std::move(knot_times),
-                                                 std::move(coefficients), basis_degree);
+                                                 std::move(coefficients), basis_degree, o.every);
   return out;
 }
 
 // --- FittedFormula -----------------------------------------------------------
 
 FittedFormula::FittedFormula(WaveformPtr formula, std::vector<double> knots,
-                             std::vector<double> coefficients, int degree)
+                             std::vector<double> coefficients, int degree, double every)
     : formula_(std::move(formula)),
       knots_(std::move(knots)),
       coefficients_(std::move(coefficients)),
-      degree_(degree) {
+      degree_(degree),
+      every_(every) {
   if (knots_.size() < 2 || coefficients_.size() != (knots_.size() - 1) * stride())
     throw std::invalid_argument("FittedFormula: inconsistent pieces");
 }
 
-std::size_t FittedFormula::locate(double t) const {
+double FittedFormula::time_scale(std::size_t i) const {
+  const double h = knots_[i + 1] - knots_[i];
+  if (!(every_ > 0) || !(h > 0) || h > every_ * (1 + 1e-9)) return h;
+  const double c = std::ldexp(every_, -static_cast<int>(std::lround(std::log2(every_ / h))));
+  const double slack = 8 * std::numeric_limits<double>::epsilon() *
+                       std::max(std::fabs(knots_[i]), std::fabs(knots_[i + 1]));
+  return std::fabs(c - h) <= slack ? c : h;
+}
+
+std::size_t FittedFormula::locate(double t, std::size_t hint) const {
+  for (std::size_t i = hint; i < hint + 2 && i + 1 < knots_.size(); ++i)
+    if (knots_[i] <= t && t < knots_[i + 1]) return i;
   const auto it = std::upper_bound(knots_.begin(), knots_.end(), t);
   if (it == knots_.begin()) return 0;
   return static_cast<std::size_t>(it - knots_.begin()) - 1;  // pieces() past the last knot
@@ -566,20 +578,21 @@ std::vector<std::pair<double, int>> FittedFormula::crossings(double level, doubl
   return out;
 }
 
-bool fitted_source_piece(const FittedFormula& w, double t, SourcePiece& p) {
+bool fitted_source_piece(const FittedFormula& w, double t, SourcePiece& p, std::size_t* cursor) {
   const int n = w.degree();
   const auto q = static_cast<Eigen::Index>(n + 1);
-  std::size_t i = w.locate(t);
+  const std::size_t i = w.locate(t, cursor ? *cursor : 0);
+  if (cursor) *cursor = i;
   std::array<double, kMaxBasis> a{};
   double h;
   if (i >= w.pieces()) {
     // Past the run: hold the last value (the length is kept: S need not change).
     a[0] = w.value(t);
-    h = p.S.rows() == q && p.S(0, 1) > 0 ? 1.0 / p.S(0, 1) : w.knot(w.pieces()) - w.knot(w.pieces() - 1);
+    h = p.S.rows() == q && p.S(0, 1) > 0 ? 1.0 / p.S(0, 1) : w.time_scale(w.pieces() - 1);
   } else {
-    h = w.knot(i + 1) - w.knot(i);
+    h = w.time_scale(i);
     std::copy(w.coefficients(i), w.coefficients(i) + n + 1, a.begin());
-    shift(a.data(), n, (std::max(t, w.knot(i)) - w.knot(i)) / h);
+    shift(a.data(), n, (std::max(t, w.knot(i)) - w.knot(i)) / (w.knot(i + 1) - w.knot(i)));
   }
   const double inv_h = 1.0 / h;
   bool changed = false;

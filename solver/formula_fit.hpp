@@ -74,8 +74,9 @@ FormulaFitResult fit_formula(const WaveformPtr& formula, const FormulaFitOptions
 // (which follow the formula's detail) and bisected.
 class FittedFormula final : public Waveform {
  public:
+  // `every`: the output step the knots subdivide (0: none), for time_scale().
   FittedFormula(WaveformPtr formula, std::vector<double> knots, std::vector<double> coefficients,
-                int degree);
+                int degree, double every = 0);
 
   double value(double t) const override;
   std::vector<double> corners(double t_end) const override;
@@ -87,11 +88,17 @@ class FittedFormula final : public Waveform {
   int degree() const { return degree_; }
   std::size_t pieces() const { return knots_.size() - 1; }
   // The piece holding at t: knots_[i] <= t < knots_[i+1]; pieces() past the last knot.
-  std::size_t locate(double t) const;
+  // `hint`: a guess (the previous answer: the engine walks forward), checked first.
+  std::size_t locate(double t, std::size_t hint = 0) const;
   double knot(std::size_t i) const { return knots_[i]; }
   // degree()+1 coefficients of piece i in s = (t - knot(i)) / (knot(i+1) - knot(i)).
   const double* coefficients(std::size_t i) const { return &coefficients_[i * stride()]; }
   const Waveform& formula() const { return *formula_; }
+  // The length piece i stands for in the source system: every/2^j when its length is that to
+  // within the rounding of its knots (knot spacings of one depth differ in the last bits far
+  // into a run; one value keeps them one input structure and one cached propagator), else
+  // its length.
+  double time_scale(std::size_t i) const;
 
  private:
   std::size_t stride() const { return static_cast<std::size_t>(degree_) + 1; }
@@ -99,16 +106,18 @@ class FittedFormula final : public Waveform {
   std::vector<double> knots_;
   std::vector<double> coefficients_;
   int degree_;
+  double every_;
 };
 
 // The source system of the fitted piece holding at t, in the basis
 //     y_k(tau) = h^k p^(k)(tau) / k!,  k = 0..degree,   u = y_0,
-// with h the piece's length: S (y_k' = (k+1)/h y_{k+1}) and H depend on h only, and the
+// with h the piece's length (its time_scale()): S (y_k' = (k+1)/h y_{k+1}) and H depend on h only, and the
 // coefficients enter through w0 (y_k(0) = the Taylor coefficients at t in s = tau/h), so all
 // pieces of one length share one propagator. Scaling by the piece's own length keeps every
 // entry of S h and of w0 of order one however deep the subdivision.
 // `piece` is updated in place; returns true when S changed (a new length), false when only
-// w0 did.
-bool fitted_source_piece(const FittedFormula& waveform, double t, SourcePiece& piece);
+// w0 did. `cursor` (optional) carries the piece index from one call to the next.
+bool fitted_source_piece(const FittedFormula& waveform, double t, SourcePiece& piece,
+                         std::size_t* cursor = nullptr);
 
 }  // namespace ringdown::solver

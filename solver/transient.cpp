@@ -283,6 +283,7 @@ class Engine {
   std::vector<WaveformPtr> gates_;
   std::vector<int> input_elements_, gate_elements_;
   std::vector<const FittedFormula*> fitted_;  // per input: its fit, or null (exact)
+  std::vector<std::size_t> fit_cursor_;       // per input: its fit's current piece
   std::vector<Configuration> configs_;
   std::map<mna::SwitchState, int> config_index_;
   std::vector<bool> stability_checked_;
@@ -368,6 +369,7 @@ bool Engine::build_structure(double t_end) {
 // fitted pieces; gates keep the formula for their crossings, bracketed at the fit's knots.
 bool Engine::fit_formulas(double t_end) {
   fitted_.assign(inputs_.size(), nullptr);
+  fit_cursor_.assign(inputs_.size(), 0);
   FormulaFitOptions fo;
   fo.every = opt_.every;
   fo.t_end = t_end;
@@ -428,7 +430,7 @@ bool Engine::fit_formulas(double t_end) {
 
 // The piece of input j from t on; true when its system (S, H) changed.
 bool Engine::set_piece(std::size_t j, double t) {
-  if (fitted_[j]) return fitted_source_piece(*fitted_[j], t, pieces_[j]);
+  if (fitted_[j]) return fitted_source_piece(*fitted_[j], t, pieces_[j], &fit_cursor_[j]);
   pieces_[j] = source_piece(inputs_[j]->piece(t).terms, time_scale_);
   return true;
 }

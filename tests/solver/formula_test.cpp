@@ -237,6 +237,40 @@ TEST(FormulaSource, SumWithAStepIsCutAtTheStep) {
   EXPECT_LE(max_difference(o.run, 0, 1), 2 * o.run.summary.formula_error * 2 + 1e-12);
 }
 
+TEST(FormulaSource, WithOtherCornersSwitchesAndASecondFormula) {
+  // Each half: a formula sine in series with a pulse train (corners between the samples and
+  // between the fit's knots), a second formula as a current source, and a switch; against
+  // the same network with sine(...) and approach(...) in their place.
+  const auto half = [](const std::string& k, const std::string& sine, const std::string& ramp) {
+    return "voltage Va" + k + " a" + k + " gnd " + sine + "\n" +
+           "voltage Vp" + k + " b" + k + " a" + k +
+           " pulse(low=0, high=1, period=37us, width=11us, rise=1us, fall=2us)\n" +
+           "switch S" + k + " b" + k + " c" + k +
+           " gate=pulse(low=0, high=1, period=300us, width=120us)\n" +
+           "resistor R" + k + " c" + k + " d" + k + " 1k\ncapacitor C" + k + " d" + k +
+           " gnd 10n\nresistor Rg" + k + " d" + k + " gnd 1k\ncurrent I" + k + " gnd d" + k +
+           " " + ramp + "\n";
+  };
+  const std::string text =
+      half("1", "formula(2*sin(2*pi*3k*t))", "formula(1mA*(1-exp(-t/50us)))") +
+      half("2", "sine(freq=3k, amp=2)", "approach(to=1mA, tau=50us)") +
+      "transient until=1ms every=10us\nrecord d1, d2\n";
+  const auto o = run_text(text);
+  ASSERT_EQ(o.run.summary.status, solver::Status::Ok);
+  EXPECT_FALSE(has_error(o.diagnostics));
+  EXPECT_GT(o.run.summary.switch_events, 4u);
+  EXPECT_LE(o.run.summary.formula_error, 1e-9);
+  // Linear between switchings, with the same switching instants in both halves, so the
+  // difference is the network's response to the two fit errors alone. In either switch
+  // state node d is an RC node with positive impulse responses: from the voltage sources
+  // with DC gain Rg/(R + Rg) = 0.5 (closed) or 0 (open), from the current source with DC
+  // transimpedance R || Rg = 500 Ohm or Rg = 1 kOhm; so by Young's inequality (as above)
+  // the difference is at most 1 x the voltage error + 1 kOhm x the current error, each at
+  // most twice its estimate times its peak (2 V, 1 mA). 1e-12 for rounding.
+  const double bound = 2 * o.run.summary.formula_error * (2.0 + 1e-3 * 1e3) + 1e-12;
+  EXPECT_LE(max_difference(o.run, 0, 1), bound);
+}
+
 TEST(FormulaGate, SwitchesWhereTheExactGateDoes) {
   // A switch gated by formula(0.5 + sin(2*pi*1k*t + 1)) against one gated by
   // sine(freq=1k, amp=1, mean=0.5, phase=1): both switch where the sine is 0, at
