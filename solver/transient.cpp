@@ -382,12 +382,15 @@ bool Engine::fit_formulas(double t_end) {
     const Element& el = c_.elements[static_cast<std::size_t>(element)];
     const std::string who = (source ? element_label(c_, element) : el.name + " gate") + ": " +
                             w->describe();
+    const char* unit = el.kind == ElementKind::VoltageSource   ? "V"
+                       : el.kind == ElementKind::CurrentSource ? "A"
+                                                               : "";
     FormulaFitResult r = fit_formula(w, fo);
     if (!r.finite) {
       diags_.push_back(make_diagnostic(
           Severity::Error, el.where,
           who + " is not finite at t = " + fmt_num(r.bad_at, "s") + " (its value is " +
-              (std::isnan(r.bad_value) ? std::string("NaN") : fmt_num(r.bad_value, "")) + ")",
+              (std::isnan(r.bad_value) ? std::string("NaN") : fmt_num(r.bad_value, unit)) + ")",
           "the expression must be defined over the whole run, from 0 to the last sample "
           "(guard a square root with max(0, ...), keep divisors away from 0)"));
       sum_.status = Status::BadInput;
@@ -397,7 +400,7 @@ bool Engine::fit_formulas(double t_end) {
       diags_.push_back(make_diagnostic(
           Severity::Error, el.where,
           who + " grows without bound near t = " + fmt_num(r.unbounded_at, "s") +
-              " (its magnitude reaches " + fmt_num(r.unbounded_value, "") +
+              " (its magnitude reaches " + fmt_num(r.unbounded_value, unit) +
               " and keeps growing closer in): no fit can follow it",
           "the expression must stay bounded over the whole run (a divisor that reaches 0?)"));
       sum_.status = Status::BadInput;
