@@ -14,6 +14,7 @@
 #include <algorithm>
 #include <ctime>
 #include <cmath>
+#include <cstdint>
 #include <cstdio>
 #include <cstring>
 #include <limits>
@@ -46,12 +47,24 @@ struct Case {
   double (*f)(double);
   double every;
   double until;
+  double tol = 1e-9;
 };
 
 double sine_f(double t) { return 2 * std::sin(2 * kPi * 1e3 * t); }
 double abs_sine(double t) { return std::fabs(std::sin(2 * kPi * 1.1e3 * t)); }
 double approach_f(double t) { return 5 * (1 - std::exp(-t / 2e-6)); }
 double steep(double t) { return std::min(1.0, std::max(0.0, (t - 1.234567e-3) * 1e15)); }
+double fast_sine(double t) { return std::sin(2 * kPi * 1e6 * t); }
+// A sine with rounding noise of 1e-12 of its amplitude (a deterministic hash of t).
+double noisy_sine(double t) {
+  std::uint64_t u;
+  std::memcpy(&u, &t, sizeof u);
+  u ^= u >> 33;
+  u *= 0xff51afd7ed558ccdULL;
+  u ^= u >> 33;
+  const double r = static_cast<double>(u >> 11) * 0x1.0p-53 - 0.5;
+  return std::sin(2 * kPi * 1e3 * t) * (1 + 2e-12 * r);
+}
 double chirp(double t) { return std::sin(2 * kPi * (1e3 + 2e5 * t) * t); }
 
 int fit_table() {
@@ -63,13 +76,16 @@ int fit_table() {
       {"chirp 1k..3kHz, H=10us", chirp, 1e-5, 5e-3},
       {"abs(sine 1.1k), H=10us", abs_sine, 1e-5, 5e-3},
       {"steep ramp (1 fs), H=10us", steep, 1e-5, 5e-3},
+      {"sine 1MHz, H=100us", fast_sine, 1e-4, 1e-3},
+      {"sine + 1e-12 noise, tol 1e-9", noisy_sine, 1e-5, 5e-3},
+      {"sine + 1e-12 noise, tol 1e-13", noisy_sine, 1e-5, 5e-3, 1e-13},
   };
   struct Policy {
     int degree;
     bool raise;
   };
   const Policy policies[] = {{3, false}, {3, true}, {1, true}, {2, true}, {4, true}};
-  std::printf("%-28s %-8s %9s %9s %9s %10s %10s\n", "formula", "degrees", "pieces", "evals",
+  std::printf("%-31s %-8s %9s %9s %9s %10s %10s\n", "formula", "degrees", "pieces", "evals",
               "fit_us", "estimate", "true_err");
   for (const Case& c : cases) {
     auto w = ringdown::make_formula(c.f, c.name);
@@ -77,7 +93,7 @@ int fit_table() {
       solver::FormulaFitOptions o;
       o.every = c.every;
       o.t_end = std::round(c.until / c.every) * c.every;
-      o.tolerance = 1e-9;
+      o.tolerance = c.tol;
       o.resolution = 16 * std::numeric_limits<double>::epsilon() * o.t_end;
       o.degree = policy.degree;
       o.raise = policy.raise;
@@ -99,7 +115,7 @@ int fit_table() {
       }
       const std::string d = std::to_string(policy.degree) +
                             (policy.raise ? "," + std::to_string(2 * policy.degree) : "");
-      std::printf("%-28s %-8s %9zu %9zu %9.0f %10.2e %10.2e\n", c.name, d.c_str(), r.pieces,
+      std::printf("%-31s %-8s %9zu %9zu %9.0f %10.2e %10.2e\n", c.name, d.c_str(), r.pieces,
                   r.evaluations, best * 1e6, r.error, true_err / r.peak);
     }
   }

@@ -21,13 +21,19 @@ constexpr double kPi = std::numbers::pi;
 constexpr int kMaxLow = 4;                  // the first degree n, at most
 constexpr int kMaxBasis = 2 * kMaxLow + 1;  // coefficients of the raised fit (2n)
 // Halving a piece shrinks its degree-n estimate by 2^(n+1) where the formula is smooth, by
-// about 2 at a kink, not at all at a jump or at rounding noise. A child whose estimate is
-// above kStallRatio of its parent's counts as a stall; after kMaxStalls stalls in a row the
-// piece is left as it is (a jump is then located to every/2^kMaxStalls, and noise costs at
-// most 2^kMaxStalls pieces per step instead of running to the depth cap). Common practice
-// in adaptive quadrature, no source.
-constexpr double kStallRatio = 0.75;
-constexpr int kMaxStalls = 3;
+// about 2 at a kink, not at all at a jump, at rounding noise, or while the piece is still
+// far too long for the formula (many oscillations in it). A piece stops being halved when
+// its estimate fell by less than kStallProgress over the last kStallLevels halvings and
+// either its sibling clearly converges (below kNonSmoothRatio of their parent's estimate:
+// the trouble is local, a jump) or its estimate is below kNoiseRange of the size of its
+// values (their range, or their magnitude if larger: rounding noise). Two children that both stall with
+// large errors are an unresolved stretch and are halved on; a kink falls by about 1/8 over
+// three halvings and goes on too. A jump is then located to every/2^kStallLevels, and noise
+// costs about 2^kStallLevels pieces per step instead of running to the depth cap. Common
+// practice in adaptive quadrature, no source.
+constexpr int kStallLevels = 3;
+constexpr double kStallProgress = 0.5;
+constexpr double kNoiseRange = 1e-3;
 // A child whose estimate fell by less than this ratio is not in the smooth regime (a kink
 // or a jump inside): the check points may then miss the largest error, so the fit kept is
 // also compared with the formula at kDenseChecks more points, and the estimate gets a
@@ -152,9 +158,11 @@ struct Work {
   double vmid = 0;        // f at the midpoint (a point of every fit)
   double est_low = 0;     // the degree-n estimate (halving ratios are taken on it)
   double est = 0;         // the estimate of the fit kept, with its safety factor
+  double scale = 0;       // the values' size at the fit's points: max(range, magnitude)
   std::array<double, kMaxBasis> coef{};  // in s = (t - a)/(b - a), zero-padded
+  std::array<double, kStallLevels> ancestors{};  // est_low of the parent, grandparent, ...
   std::uint8_t depth = 0;
-  std::uint8_t stalls = 0;
+  bool stalled = false;  // halving stopped helping (see kStallLevels)
 };
 
 class Fitter {
@@ -206,11 +214,11 @@ class Fitter {
       low = std::max(low, std::fabs(v[static_cast<std::size_t>(i)] -
                                     horner(c.data(), n, r.point[static_cast<std::size_t>(i)])));
     w.est_low = low;
+    const auto [lo, hi] = std::minmax_element(v.begin(), v.begin() + 2 * n + 1);
+    w.scale = std::max(*hi - *lo, std::max(std::fabs(*lo), std::fabs(*hi)));
     bool smooth = true;
     if (parent_low >= 0) {
       smooth = !(low > kNonSmoothRatio * parent_low);
-      w.stalls = low > kStallRatio * parent_low ? static_cast<std::uint8_t>(w.stalls + 1)
-                                                : std::uint8_t{0};
     }
     const double safety = smooth ? 1.0 : kNonSmoothSafety;
     w.coef = c;
@@ -259,7 +267,9 @@ class Fitter {
     for (Work* c : {&left, &right}) {
       *c = Work{};
       c->depth = static_cast<std::uint8_t>(parent.depth + 1);
-      c->stalls = parent.stalls;
+      c->ancestors[0] = parent.est_low;
+      for (int k = 1; k < kStallLevels; ++k)
+        c->ancestors[static_cast<std::size_t>(k)] = parent.ancestors[static_cast<std::size_t>(k - 1)];
     }
     left.a = parent.a;
     left.b = m;
@@ -269,7 +279,17 @@ class Fitter {
     right.b = parent.b;
     right.va = parent.vmid;
     right.vb = parent.vb;
-    return fit(left, parent.est_low) && fit(right, parent.est_low);
+    if (!fit(left, parent.est_low) || !fit(right, parent.est_low)) return false;
+    // A sibling that clearly converges (smooth regime) makes the trouble local.
+    const bool settled_l = left.est_low <= kNonSmoothRatio * parent.est_low;
+    const bool settled_r = right.est_low <= kNonSmoothRatio * parent.est_low;
+    for (Work* c : {&left, &right}) {
+      const bool sibling = !(c == &left ? settled_r : settled_l);
+      const double earlier = c->ancestors[kStallLevels - 1];
+      c->stalled = c->depth >= kStallLevels && c->est_low > kStallProgress * earlier &&
+                   (!sibling || c->est_low <= kNoiseRange * c->scale);
+    }
+    return true;
   }
 
   // Zooms in on the largest |f| in [a, b] (see kPoleProbes); true when it grows like a
@@ -371,7 +391,7 @@ FormulaFitResult fit_formula(const WaveformPtr& formula, const FormulaFitOptions
   };
   std::vector<Stalled> stalled;  // the kPoleProbes largest estimates among stalled pieces
   const auto accept = [&](const Work& w) {
-    if (w.stalls >= kMaxStalls) {
+    if (w.stalled) {
       stalled.push_back({w.a, w.b, w.est});
       std::sort(stalled.begin(), stalled.end(),
                 [](const Stalled& x, const Stalled& y) { return x.est > y.est; });
@@ -405,7 +425,7 @@ FormulaFitResult fit_formula(const WaveformPtr& formula, const FormulaFitOptions
     const double target = fitter.target();
     std::size_t splits = 0;
     for (const Work& w : active)
-      if (w.est > target && w.depth < o.max_depth && w.stalls < kMaxStalls &&
+      if (w.est > target && w.depth < o.max_depth && !w.stalled &&
           w.b - w.a >= 2 * min_length)
         ++splits;
     if (splits > 0 && starts.size() + active.size() + splits > o.max_pieces) {
@@ -419,7 +439,7 @@ FormulaFitResult fit_formula(const WaveformPtr& formula, const FormulaFitOptions
     refined = true;
     next.clear();
     for (const Work& w : active) {
-      if (!(w.est > target && w.depth < o.max_depth && w.stalls < kMaxStalls &&
+      if (!(w.est > target && w.depth < o.max_depth && !w.stalled &&
             w.b - w.a >= 2 * min_length)) {
         accept(w);
         continue;

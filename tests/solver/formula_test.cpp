@@ -8,6 +8,10 @@
 
 #include <Eigen/Dense>
 #include <cmath>
+#include <cstdint>
+#include <cstring>
+#include <functional>
+#include <limits>
 #include <numbers>
 #include <string>
 #include <vector>
@@ -348,6 +352,43 @@ TEST(FormulaFit, DepthCapOnAKinkReportsTheLargerEstimate) {
   // The worst piece is at a kink: within 10 us of a zero of sin(2 pi 1.1k t), k/2.2 kHz.
   const double k = std::round(r.worst_at * 2.2e3);
   EXPECT_LT(std::abs(r.worst_at - k / 2.2e3), 1e-5);
+}
+
+TEST(FormulaFit, ManyPeriodsPerOutputStepAreResolved) {
+  // sin(2 pi 1MHz t) recorded every 100 us: a hundred periods per output step, aliased at
+  // the first level; the halving goes on while both halves stay bad, down to about 16
+  // pieces per period (degree 6 at 1e-9), and the estimate is honest.
+  const auto f = [](double t) { return std::sin(2 * kPi * 1e6 * t); };
+  const auto r = solver::fit_formula(ringdown::make_formula(f, "fast"), fit_options(1e-4, 1e-3));
+  ASSERT_TRUE(r.waveform);
+  EXPECT_LE(r.error, 1e-9);
+  EXPECT_FALSE(r.budget_reached);
+  EXPECT_GT(r.pieces, 5000u);    // > 5 per period over 1000 periods
+  EXPECT_LT(r.pieces, 40000u);   // < 40 per period
+  EXPECT_NEAR(true_fit_error(*r.waveform, f) / r.error, 1.0, 0.05);
+}
+
+TEST(FormulaFit, RoundingNoiseStopsTheRefinement) {
+  // A sine with noise of 1e-12 of its amplitude (a hash of t's bits, so nothing smooth),
+  // asked for 1e-13: halving cannot help; it stops after a few levels per step instead of
+  // running to the depth cap or the piece budget, and reports the noise level honestly.
+  const auto f = [](double t) {
+    std::uint64_t u;
+    std::memcpy(&u, &t, sizeof u);
+    u ^= u >> 33;
+    u *= 0xff51afd7ed558ccdULL;
+    u ^= u >> 33;
+    const double r = static_cast<double>(u >> 11) * 0x1.0p-53 - 0.5;
+    return std::sin(2 * kPi * 1e3 * t) * (1 + 2e-12 * r);
+  };
+  const auto r = solver::fit_formula(ringdown::make_formula(f, "noisy"),
+                                     fit_options(1e-5, 5e-3, 1e-13));
+  ASSERT_TRUE(r.waveform);
+  EXPECT_FALSE(r.budget_reached);
+  EXPECT_LT(r.pieces, 500u * 256u);  // far below the depth cap's 2^40 per step
+  EXPECT_GT(r.error, 1e-13);         // not reached, and said so
+  EXPECT_LT(r.error, 1e-11);         // about the noise (amplitude 1e-12)
+  EXPECT_LE(true_fit_error(*r.waveform, f) / r.peak, 1.1 * r.error);
 }
 
 TEST(FormulaSource, JumpThatCannotBeFittedWarnsWithAnHonestEstimate) {
