@@ -12,11 +12,11 @@
 //
 // What it does not: pass/fail, or compare with other programs.
 #include <algorithm>
-#include <ctime>
 #include <cmath>
 #include <cstdint>
 #include <cstdio>
 #include <cstring>
+#include <ctime>
 #include <limits>
 #include <numbers>
 #include <string>
@@ -69,8 +69,10 @@ double chirp(double t) { return std::sin(2 * kPi * (1e3 + 2e5 * t) * t); }
 
 int fit_table() {
   const Case cases[] = {
-      {"sine, 1000/period", sine_f, 1e-6, 5e-3},  {"sine, 100/period", sine_f, 1e-5, 5e-3},
-      {"sine, 20/period", sine_f, 5e-5, 5e-3},    {"sine, 5/period", sine_f, 2e-4, 5e-3},
+      {"sine, 1000/period", sine_f, 1e-6, 5e-3},
+      {"sine, 100/period", sine_f, 1e-5, 5e-3},
+      {"sine, 20/period", sine_f, 5e-5, 5e-3},
+      {"sine, 5/period", sine_f, 2e-4, 5e-3},
       {"sine, 1/4 per period", sine_f, 4e-3, 20e-3},
       {"approach tau=2us, H=0.1us", approach_f, 1e-7, 20e-6},
       {"chirp 1k..3kHz, H=10us", chirp, 1e-5, 5e-3},

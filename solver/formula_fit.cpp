@@ -11,8 +11,6 @@
 #include <numbers>
 #include <stdexcept>
 
-#include "parser/units.hpp"
-
 namespace ringdown::solver {
 
 namespace {
@@ -26,10 +24,10 @@ constexpr int kMaxBasis = 2 * kMaxLow + 1;  // coefficients of the raised fit (2
 // its estimate fell by less than kStallProgress over the last kStallLevels halvings and
 // either its sibling clearly converges (below kNonSmoothRatio of their parent's estimate:
 // the trouble is local, a jump) or its estimate is below kNoiseRange of the size of its
-// values (their range, or their magnitude if larger: rounding noise). Two children that both stall with
-// large errors are an unresolved stretch and are halved on; a kink falls by about 1/8 over
-// three halvings and goes on too. A jump is then located to every/2^kStallLevels, and noise
-// costs about 2^kStallLevels pieces per step instead of running to the depth cap. Common
+// values (their range, or their magnitude if larger: rounding noise). Two children that both
+// stall with large errors are an unresolved stretch and are halved on; a kink falls by about
+// 1/8 over three halvings and goes on too. A jump is then located to every/2^kStallLevels, and
+// noise costs about 2^kStallLevels pieces per step instead of running to the depth cap. Common
 // practice in adaptive quadrature, no source.
 constexpr int kStallLevels = 3;
 constexpr double kStallProgress = 0.5;
@@ -98,7 +96,8 @@ Table inverse_vandermonde(const double* s, int m) {
   Table w{};
   for (int k = 0; k < m; ++k)
     for (int i = 0; i < m; ++i)
-      w[static_cast<std::size_t>(k)][static_cast<std::size_t>(i)] = static_cast<double>(a[k][m + i]);
+      w[static_cast<std::size_t>(k)][static_cast<std::size_t>(i)] =
+          static_cast<double>(a[k][m + i]);
   return w;
 }
 
@@ -159,7 +158,7 @@ struct Work {
   double est_low = 0;     // the degree-n estimate (halving ratios are taken on it)
   double est = 0;         // the estimate of the fit kept, with its safety factor
   double scale = 0;       // the values' size at the fit's points: max(range, magnitude)
-  std::array<double, kMaxBasis> coef{};  // in s = (t - a)/(b - a), zero-padded
+  std::array<double, kMaxBasis> coef{};          // in s = (t - a)/(b - a), zero-padded
   std::array<double, kStallLevels> ancestors{};  // est_low of the parent, grandparent, ...
   std::uint8_t depth = 0;
   bool stalled = false;  // halving stopped helping (see kStallLevels)
@@ -216,10 +215,7 @@ class Fitter {
     w.est_low = low;
     const auto [lo, hi] = std::minmax_element(v.begin(), v.begin() + 2 * n + 1);
     w.scale = std::max(*hi - *lo, std::max(std::fabs(*lo), std::fabs(*hi)));
-    bool smooth = true;
-    if (parent_low >= 0) {
-      smooth = !(low > kNonSmoothRatio * parent_low);
-    }
+    const bool smooth = parent_low < 0 || low <= kNonSmoothRatio * parent_low;
     const double safety = smooth ? 1.0 : kNonSmoothSafety;
     w.coef = c;
     int degree = n;
@@ -269,7 +265,8 @@ class Fitter {
       c->depth = static_cast<std::uint8_t>(parent.depth + 1);
       c->ancestors[0] = parent.est_low;
       for (int k = 1; k < kStallLevels; ++k)
-        c->ancestors[static_cast<std::size_t>(k)] = parent.ancestors[static_cast<std::size_t>(k - 1)];
+        c->ancestors[static_cast<std::size_t>(k)] =
+            parent.ancestors[static_cast<std::size_t>(k - 1)];
     }
     left.a = parent.a;
     left.b = m;
@@ -284,10 +281,10 @@ class Fitter {
     const bool settled_l = left.est_low <= kNonSmoothRatio * parent.est_low;
     const bool settled_r = right.est_low <= kNonSmoothRatio * parent.est_low;
     for (Work* c : {&left, &right}) {
-      const bool sibling = !(c == &left ? settled_r : settled_l);
+      const bool local = c == &left ? settled_r : settled_l;
       const double earlier = c->ancestors[kStallLevels - 1];
       c->stalled = c->depth >= kStallLevels && c->est_low > kStallProgress * earlier &&
-                   (!sibling || c->est_low <= kNoiseRange * c->scale);
+                   (local || c->est_low <= kNoiseRange * c->scale);
     }
     return true;
   }
@@ -425,8 +422,7 @@ FormulaFitResult fit_formula(const WaveformPtr& formula, const FormulaFitOptions
     const double target = fitter.target();
     std::size_t splits = 0;
     for (const Work& w : active)
-      if (w.est > target && w.depth < o.max_depth && !w.stalled &&
-          w.b - w.a >= 2 * min_length)
+      if (w.est > target && w.depth < o.max_depth && !w.stalled && w.b - w.a >= 2 * min_length)
         ++splits;
     if (splits > 0 && starts.size() + active.size() + splits > o.max_pieces) {
       out.budget_reached = true;
@@ -439,8 +435,7 @@ FormulaFitResult fit_formula(const WaveformPtr& formula, const FormulaFitOptions
     refined = true;
     next.clear();
     for (const Work& w : active) {
-      if (!(w.est > target && w.depth < o.max_depth && !w.stalled &&
-            w.b - w.a >= 2 * min_length)) {
+      if (!(w.est > target && w.depth < o.max_depth && !w.stalled && w.b - w.a >= 2 * min_length)) {
         accept(w);
         continue;
       }
@@ -579,7 +574,8 @@ std::vector<std::pair<double, int>> FittedFormula::crossings(double level, doubl
     const double a = knots_[i];
     const double b = std::min(knots_[i + 1], t_end);
     for (int k = 1; k <= kCrossingSamplesPerPiece; ++k) {
-      const double t = k == kCrossingSamplesPerPiece ? b : a + (b - a) * k / kCrossingSamplesPerPiece;
+      const double t =
+          k == kCrossingSamplesPerPiece ? b : a + (b - a) * k / kCrossingSamplesPerPiece;
       const bool now = above(t);
       if (now != state) {
         // Bisection on the formula down to adjacent doubles.

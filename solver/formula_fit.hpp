@@ -48,9 +48,9 @@ class FittedFormula;
 
 struct FormulaFitResult {
   std::shared_ptr<const FittedFormula> waveform;  // empty when not finite or unbounded
-  double error = 0;         // the largest estimate relative to the peak (0 if the peak is 0)
-  double worst_at = 0;      // start of the piece with that estimate, s
-  double peak = 0;          // largest |f| seen
+  double error = 0;     // the largest estimate relative to the peak (0 if the peak is 0)
+  double worst_at = 0;  // start of the piece with that estimate, s
+  double peak = 0;      // largest |f| seen
   std::size_t pieces = 0;
   std::size_t evaluations = 0;
   bool budget_reached = false;  // max_pieces stopped the refinement
@@ -111,9 +111,9 @@ class FittedFormula final : public Waveform {
 
 // The source system of the fitted piece holding at t, in the basis
 //     y_k(tau) = h^k p^(k)(tau) / k!,  k = 0..degree,   u = y_0,
-// with h the piece's length (its time_scale()): S (y_k' = (k+1)/h y_{k+1}) and H depend on h only, and the
-// coefficients enter through w0 (y_k(0) = the Taylor coefficients at t in s = tau/h), so all
-// pieces of one length share one propagator. Scaling by the piece's own length keeps every
+// with h the piece's length (its time_scale()): S (y_k' = (k+1)/h y_{k+1}) and H depend on h only,
+// and the coefficients enter through w0 (y_k(0) = the Taylor coefficients at t in s = tau/h), so
+// all pieces of one length share one propagator. Scaling by the piece's own length keeps every
 // entry of S h and of w0 of order one however deep the subdivision.
 // `piece` is updated in place; returns true when S changed (a new length), false when only
 // w0 did. `cursor` (optional) carries the piece index from one call to the next.

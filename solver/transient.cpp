@@ -907,7 +907,8 @@ bool Engine::steps_through_fitted(double t, double tn, std::size_t e_begin, std:
                                   const std::vector<Event>& events) {
   bool any = false;
   for (std::size_t i = e_begin; i < e_end && !any; ++i)
-    for (const auto& src : events[i].sources) any = any || fitted_[static_cast<std::size_t>(src.first)];
+    for (const auto& src : events[i].sources)
+      any = any || fitted_[static_cast<std::size_t>(src.first)] != nullptr;
   if (!any) return false;
   double tprev = t;
   for (std::size_t i = e_begin; i < e_end; ++i) {

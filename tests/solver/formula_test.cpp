@@ -99,9 +99,9 @@ solver::FormulaFitOptions fit_options(double every, double until, double toleran
 // Two identical RC low-passes (1 kOhm, 100 nF: tau = 100 us), one driven by the formula,
 // one by the exact waveform.
 std::string two_rc(const std::string& formula, const std::string& exact, const std::string& run) {
-  return "voltage V1 in1 gnd " + formula + "\nresistor R1 in1 out1 1k\ncapacitor C1 out1 gnd 100n\n" +
-         "voltage V2 in2 gnd " + exact + "\nresistor R2 in2 out2 1k\ncapacitor C2 out2 gnd 100n\n" +
-         run + "\nrecord out1, out2\n";
+  return "voltage V1 in1 gnd " + formula +
+         "\nresistor R1 in1 out1 1k\ncapacitor C1 out1 gnd 100n\n" + "voltage V2 in2 gnd " + exact +
+         "\nresistor R2 in2 out2 1k\ncapacitor C2 out2 gnd 100n\n" + run + "\nrecord out1, out2\n";
 }
 
 // --- against exact sources ---------------------------------------------------------------
@@ -213,8 +213,8 @@ TEST(FormulaSource, PolynomialIsFittedToRoundingAndDcUsesItsValueAtZero) {
   // formula(3 + 2*t/1ms) is a straight line: the fit is exact to rounding, the DC operating
   // point sees 3 V (NETLIST.md section 5: before 0 a waveform holds its value at 0), and the
   // response equals that of points(0 3, 1ms 5) (exact in the engine).
-  const std::string text = two_rc("formula(3 + 2*t/1ms)", "points(0 3, 1ms 5)",
-                                  "transient until=1ms every=10us");
+  const std::string text =
+      two_rc("formula(3 + 2*t/1ms)", "points(0 3, 1ms 5)", "transient until=1ms every=10us");
   const auto o = run_text(text);
   ASSERT_EQ(o.run.summary.status, solver::Status::Ok);
   EXPECT_LT(o.run.summary.formula_error, 1e-14);
@@ -230,10 +230,9 @@ TEST(FormulaSource, PolynomialIsFittedToRoundingAndDcUsesItsValueAtZero) {
 TEST(FormulaSource, SumWithAStepIsCutAtTheStep) {
   // (step(at=1.2345ms) + formula(sin)) against (step + sine): the fit takes the sum's corner
   // as a knot, with the left limit before and the new value after.
-  const std::string text =
-      two_rc("(step(from=0, to=1, at=1.2345ms) + formula(1V*sin(2*pi*1k*t)))",
-             "(step(from=0, to=1, at=1.2345ms) + sine(freq=1k, amp=1))",
-             "transient until=3ms every=20us");
+  const std::string text = two_rc("(step(from=0, to=1, at=1.2345ms) + formula(1V*sin(2*pi*1k*t)))",
+                                  "(step(from=0, to=1, at=1.2345ms) + sine(freq=1k, amp=1))",
+                                  "transient until=3ms every=20us");
   const auto o = run_text(text);
   ASSERT_EQ(o.run.summary.status, solver::Status::Ok);
   EXPECT_LE(o.run.summary.formula_error, 1e-9);
@@ -246,19 +245,16 @@ TEST(FormulaSource, WithOtherCornersSwitchesAndASecondFormula) {
   // between the fit's knots), a second formula as a current source, and a switch; against
   // the same network with sine(...) and approach(...) in their place.
   const auto half = [](const std::string& k, const std::string& sine, const std::string& ramp) {
-    return "voltage Va" + k + " a" + k + " gnd " + sine + "\n" +
-           "voltage Vp" + k + " b" + k + " a" + k +
-           " pulse(low=0, high=1, period=37us, width=11us, rise=1us, fall=2us)\n" +
+    return "voltage Va" + k + " a" + k + " gnd " + sine + "\n" + "voltage Vp" + k + " b" + k +
+           " a" + k + " pulse(low=0, high=1, period=37us, width=11us, rise=1us, fall=2us)\n" +
            "switch S" + k + " b" + k + " c" + k +
-           " gate=pulse(low=0, high=1, period=300us, width=120us)\n" +
-           "resistor R" + k + " c" + k + " d" + k + " 1k\ncapacitor C" + k + " d" + k +
-           " gnd 10n\nresistor Rg" + k + " d" + k + " gnd 1k\ncurrent I" + k + " gnd d" + k +
-           " " + ramp + "\n";
+           " gate=pulse(low=0, high=1, period=300us, width=120us)\n" + "resistor R" + k + " c" + k +
+           " d" + k + " 1k\ncapacitor C" + k + " d" + k + " gnd 10n\nresistor Rg" + k + " d" + k +
+           " gnd 1k\ncurrent I" + k + " gnd d" + k + " " + ramp + "\n";
   };
-  const std::string text =
-      half("1", "formula(2*sin(2*pi*3k*t))", "formula(1mA*(1-exp(-t/50us)))") +
-      half("2", "sine(freq=3k, amp=2)", "approach(to=1mA, tau=50us)") +
-      "transient until=1ms every=10us\nrecord d1, d2\n";
+  const std::string text = half("1", "formula(2*sin(2*pi*3k*t))", "formula(1mA*(1-exp(-t/50us)))") +
+                           half("2", "sine(freq=3k, amp=2)", "approach(to=1mA, tau=50us)") +
+                           "transient until=1ms every=10us\nrecord d1, d2\n";
   const auto o = run_text(text);
   ASSERT_EQ(o.run.summary.status, solver::Status::Ok);
   EXPECT_FALSE(has_error(o.diagnostics));
@@ -317,12 +313,12 @@ TEST(FormulaFit, EstimateIsHonestOnSmoothAndNonSmoothFormulas) {
   const Case cases[] = {
       {"sine", [](double t) { return 2 * std::sin(2 * kPi * 1e3 * t); }, 5e-5, 5e-3, true},
       {"approach", [](double t) { return 5 * (1 - std::exp(-t / 2e-6)); }, 1e-7, 2e-5, true},
-      {"abs(sine)", [](double t) { return std::abs(std::sin(2 * kPi * 1.1e3 * t)); }, 1e-5,
-       5e-3, false},
+      {"abs(sine)", [](double t) { return std::abs(std::sin(2 * kPi * 1.1e3 * t)); }, 1e-5, 5e-3,
+       false},
   };
   for (const Case& c : cases) {
-    const auto r = solver::fit_formula(ringdown::make_formula(c.f, c.name),
-                                       fit_options(c.every, c.until));
+    const auto r =
+        solver::fit_formula(ringdown::make_formula(c.f, c.name), fit_options(c.every, c.until));
     ASSERT_TRUE(r.finite) << c.name;
     ASSERT_TRUE(r.waveform) << c.name;
     EXPECT_LE(r.error, 1e-9) << c.name;
@@ -363,8 +359,8 @@ TEST(FormulaFit, ManyPeriodsPerOutputStepAreResolved) {
   ASSERT_TRUE(r.waveform);
   EXPECT_LE(r.error, 1e-9);
   EXPECT_FALSE(r.budget_reached);
-  EXPECT_GT(r.pieces, 5000u);    // > 5 per period over 1000 periods
-  EXPECT_LT(r.pieces, 40000u);   // < 40 per period
+  EXPECT_GT(r.pieces, 5000u);   // > 5 per period over 1000 periods
+  EXPECT_LT(r.pieces, 40000u);  // < 40 per period
   EXPECT_NEAR(true_fit_error(*r.waveform, f) / r.error, 1.0, 0.05);
 }
 
@@ -381,8 +377,8 @@ TEST(FormulaFit, RoundingNoiseStopsTheRefinement) {
     const double r = static_cast<double>(u >> 11) * 0x1.0p-53 - 0.5;
     return std::sin(2 * kPi * 1e3 * t) * (1 + 2e-12 * r);
   };
-  const auto r = solver::fit_formula(ringdown::make_formula(f, "noisy"),
-                                     fit_options(1e-5, 5e-3, 1e-13));
+  const auto r =
+      solver::fit_formula(ringdown::make_formula(f, "noisy"), fit_options(1e-5, 5e-3, 1e-13));
   ASSERT_TRUE(r.waveform);
   EXPECT_FALSE(r.budget_reached);
   EXPECT_LT(r.pieces, 500u * 256u);  // far below the depth cap's 2^40 per step
@@ -417,8 +413,8 @@ TEST(FormulaSource, JumpThatCannotBeFittedWarnsWithAnHonestEstimate) {
 }
 
 TEST(FormulaSource, SmoothFormulaGivesNoWarning) {
-  const auto o = run_text(two_rc("formula(1V*abs(sin(2*pi*1.1k*t)))", "0",
-                                 "transient until=5ms every=10us"));
+  const auto o =
+      run_text(two_rc("formula(1V*abs(sin(2*pi*1.1k*t)))", "0", "transient until=5ms every=10us"));
   ASSERT_EQ(o.run.summary.status, solver::Status::Ok);
   EXPECT_LE(o.run.summary.formula_error, 1e-9);
   EXPECT_EQ(find_warning(o.diagnostics, "formula("), nullptr);
