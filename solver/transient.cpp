@@ -894,12 +894,6 @@ void Engine::handle(const Event& ev) {
   current_ = nullptr;
 }
 
-// One output interval [t, t + every] with source corners strictly inside and
-// no switching: the map from X(t) to X(t + every) is linear, so when the same
-// pattern of corners recurs (pulse trains) it is cached as one matrix,
-// [[Phi(every), G], [0, W]]: its state block is the full step's and only the
-// q input columns are new, computed by the action of the exponential on q
-// unit vectors. A new pattern is stepped directly (actions on X).
 // An interval in which a fitted formula starts new pieces: their coefficients are data in
 // the state, not structure, so a pattern matrix cannot be reused; step event by event
 // (the sub-step lengths repeat, so their propagators are cached). False: none does.
@@ -920,6 +914,12 @@ bool Engine::steps_through_fitted(double t, double tn, std::size_t e_begin, std:
   return true;
 }
 
+// One output interval [t, t + every] with source corners strictly inside and
+// no switching: the map from X(t) to X(t + every) is linear, so when the same
+// pattern of corners recurs (pulse trains) it is cached as one matrix,
+// [[Phi(every), G], [0, W]]: its state block is the full step's and only the
+// q input columns are new, computed by the action of the exponential on q
+// unit vectors. A new pattern is stepped directly (actions on X).
 void Engine::interval_with_corners(double t, double tn, std::size_t e_begin, std::size_t e_end,
                                    const std::vector<Event>& events) {
   if (steps_through_fitted(t, tn, e_begin, e_end, events)) return;
