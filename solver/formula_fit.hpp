@@ -11,7 +11,9 @@
 // at the Chebyshev points of twice the degree in between. A piece whose estimate exceeds
 // tolerance * peak(|f|) is refitted with twice the degree through the same points, then
 // halved, until the estimate passes, the depth cap is met, or halving stops helping (a
-// jump, rounding noise); the achieved estimate is reported honestly either way.
+// jump, rounding noise); the achieved estimate is reported honestly either way. A value
+// that is NaN or infinite, or a pole (|f| growing without bound between the points), ends
+// the fit with no waveform and the instant.
 //
 // Not here: the engine's use of the pieces (transient.cpp), diagnostics (the caller words
 // them from the result), parsing the expression (parser/load.cpp).
