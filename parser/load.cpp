@@ -210,13 +210,23 @@ struct BlockDef {
   std::vector<const Stmt*> body;
 };
 
-// Compiled formula(...) body: a small tree evaluated at each t.
+// Compiled formula(...) body: a small tree evaluated at each t (the engine's fit evaluates
+// it millions of times: functions are dispatched by id, arguments kept off the heap).
 struct FormulaNode {
   enum class Kind { Const, Time, Neg, Add, Sub, Mul, Div, Pow, Func } kind = Kind::Const;
+  enum class Fn { Sqrt, Exp, Log, Log10, Sin, Cos, Tan, Atan, Abs, Pow, Min, Max } fn = Fn::Sqrt;
   double value = 0;
-  std::string func;
   std::vector<FormulaNode> args;
 };
+
+FormulaNode::Fn function_id(const std::string& f) {
+  using F = FormulaNode::Fn;
+  static const std::map<std::string, F> ids = {
+      {"sqrt", F::Sqrt}, {"exp", F::Exp}, {"log", F::Log},   {"log10", F::Log10},
+      {"sin", F::Sin},   {"cos", F::Cos}, {"tan", F::Tan},   {"atan", F::Atan},
+      {"abs", F::Abs},   {"pow", F::Pow}, {"min", F::Min},   {"max", F::Max}};
+  return ids.at(f);
+}
 
 double apply_function(const std::string& f, const std::vector<double>& a) {
   if (f == "sqrt") return std::sqrt(a[0]);
@@ -246,10 +256,30 @@ double evaluate_formula(const FormulaNode& n, double t) {
     case K::Div: return evaluate_formula(n.args[0], t) / evaluate_formula(n.args[1], t);
     case K::Pow: return std::pow(evaluate_formula(n.args[0], t), evaluate_formula(n.args[1], t));
     case K::Func: {
-      std::vector<double> a;
-      a.reserve(n.args.size());
-      for (const auto& x : n.args) a.push_back(evaluate_formula(x, t));
-      return apply_function(n.func, a);
+      using F = FormulaNode::Fn;
+      const double a = evaluate_formula(n.args[0], t);
+      switch (n.fn) {
+        case F::Sqrt: return std::sqrt(a);
+        case F::Exp: return std::exp(a);
+        case F::Log: return std::log(a);
+        case F::Log10: return std::log10(a);
+        case F::Sin: return std::sin(a);
+        case F::Cos: return std::cos(a);
+        case F::Tan: return std::tan(a);
+        case F::Atan: return std::atan(a);
+        case F::Abs: return std::fabs(a);
+        case F::Pow: return std::pow(a, evaluate_formula(n.args[1], t));
+        case F::Min:
+        case F::Max: {
+          double r = a;
+          for (std::size_t i = 1; i < n.args.size(); ++i) {
+            const double b = evaluate_formula(n.args[i], t);
+            r = n.fn == F::Min ? std::min(r, b) : std::max(r, b);
+          }
+          return r;
+        }
+      }
+      return std::numeric_limits<double>::quiet_NaN();
     }
   }
   return 0;
@@ -1118,6 +1148,13 @@ std::optional<FormulaNode> Loader::compile_formula(const ast::Operand& op, Scope
              : o.op == '/' ? K::Div : K::Pow;
       n.args.push_back(std::move(*acc));
       n.args.push_back(std::move(*b));
+      if (n.args[0].kind == K::Const && n.args[1].kind == K::Const) {
+        // A constant run of a chain, such as 2*pi*1k in 2*pi*1k*t: folded now, in the same
+        // left-to-right order as at run time (same rounding).
+        FormulaNode folded;
+        folded.value = evaluate_formula(n, 0.0);
+        n = std::move(folded);
+      }
       acc = std::move(n);
     }
     unit = acc_unit;
@@ -1136,7 +1173,7 @@ std::optional<FormulaNode> Loader::compile_formula(const ast::Operand& op, Scope
     }
     FormulaNode n;
     n.kind = K::Func;
-    n.func = c.function;
+    n.fn = function_id(c.function);
     std::vector<Unit> units;
     for (const ast::Argument& a : c.args) {
       Unit u;
@@ -1352,7 +1389,7 @@ WaveformPtr Loader::eval_waveform_call(const ast::Call& call, Scope* scope, cons
     }
     auto shared = std::make_shared<FormulaNode>(std::move(*tree));
     return make_formula([shared](double t) { return evaluate_formula(*shared, t); },
-                        text_of(call));
+                        text_of(call.args[0].value));
   }
   if (f == "points") {
     std::vector<std::pair<double, double>> pts;

@@ -11,8 +11,12 @@
 // every event for the trajectory (dense_output.hpp); at the end, the output-step
 // and run-length warnings from the natural modes (NETLIST.md section 7).
 //
-// Not here: `formula` sources (rejected with a diagnostic until the fitting
-// engine lands), figures, writers, the sparse engine.
+// `formula` sources and gates are replaced by their piecewise polynomial fits
+// (formula_fit.hpp) before the events are built; their pieces carry the
+// coefficients in the initial state w0 rather than in H, so the structure
+// depends only on the piece length.
+//
+// Not here: figures, writers, the sparse engine.
 #include "solver/transient.hpp"
 
 #include <Eigen/Eigenvalues>
@@ -32,6 +36,7 @@
 #include "mna/descriptor.hpp"
 #include "parser/units.hpp"
 #include "solver/dense_output.hpp"
+#include "solver/formula_fit.hpp"
 #include "solver/initial_state.hpp"
 #include "solver/propagation.hpp"
 #include "solver/signal_program.hpp"
@@ -199,7 +204,9 @@ class Engine {
     return c_.transient ? c_.transient->where : none;
   }
   bool check_inputs();
-  bool build_structure();
+  bool build_structure(double t_end);
+  bool fit_formulas(double t_end);
+  bool set_piece(std::size_t j, double t);
   int config_for(const mna::SwitchState& closed);  // -1 on failure (diagnostic added)
   void check_stability(int config);
   bool initial_state();
@@ -212,6 +219,8 @@ class Engine {
               const std::vector<int>& refreshed) const;
   void interval_with_corners(double t, double tn, std::size_t e_begin, std::size_t e_end,
                              const std::vector<Event>& events);
+  bool steps_through_fitted(double t, double tn, std::size_t e_begin, std::size_t e_end,
+                            const std::vector<Event>& events);
   void emit(double t);
   void keep(double t, bool left_limit);  // dense output: a checkpoint of X_ now
   void modal_checks();
@@ -232,6 +241,9 @@ class Engine {
   std::vector<int> cap_elements_;  // element index per capacitor branch
   std::vector<WaveformPtr> inputs_;
   std::vector<WaveformPtr> gates_;
+  std::vector<int> input_elements_, gate_elements_;
+  std::vector<const FittedFormula*> fitted_;  // per input: its fit, or null (exact)
+  std::vector<std::size_t> fit_cursor_;       // per input: its fit's current piece
   std::vector<Configuration> configs_;
   std::map<mna::SwitchState, int> config_index_;
   std::vector<bool> stability_checked_;
@@ -282,10 +294,13 @@ bool Engine::check_inputs() {
   bool ok = true;
   for (const Element& e : c_.elements) {
     const bool source = e.kind == ElementKind::VoltageSource || e.kind == ElementKind::CurrentSource;
-    if ((source || e.kind == ElementKind::Switch) && e.waveform && !e.waveform->is_exact()) {
-      diags_.push_back(make_diagnostic(Severity::Error, e.where,
-                            "formula() sources are not supported by the transient engine yet",
-                            "write the waveform with step, pulse, sine, approach or points"));
+    if ((source || e.kind == ElementKind::Switch) && e.waveform && !e.waveform->is_exact() &&
+        !(opt_.formula_tolerance > 0 && std::isfinite(opt_.formula_tolerance)) && ok) {
+      diags_.push_back(make_diagnostic(
+          Severity::Error, e.where,
+          "the formula tolerance must be a positive number (got " +
+              fmt_num(opt_.formula_tolerance, "") + ")",
+          "e.g. 1e-9: the fit's estimated error relative to the formula's peak"));
       ok = false;
     }
     if (e.kind == ElementKind::Resistor && e.value < 0) {
@@ -305,14 +320,92 @@ std::string Engine::unknown_label(int u) const {
                                                      : std::string("?");
 }
 
-bool Engine::build_structure() {
+bool Engine::build_structure(double t_end) {
   const mna::Network& net = *net_;
   StateElements states = state_elements(c_, net);
   topology_ = std::move(states.structure);
   cap_elements_ = std::move(states.capacitor_elements);
-  for (int e : net.input_elements())
+  for (int e : net.input_elements()) {
     inputs_.push_back(c_.elements[static_cast<std::size_t>(e)].waveform);
-  for (int e : net.switches()) gates_.push_back(c_.elements[static_cast<std::size_t>(e)].waveform);
+    input_elements_.push_back(e);
+  }
+  for (int e : net.switches()) {
+    gates_.push_back(c_.elements[static_cast<std::size_t>(e)].waveform);
+    gate_elements_.push_back(e);
+  }
+  return fit_formulas(t_end);
+}
+
+// formula() waveforms become their fits (formula_fit.hpp) for this run: sources carry the
+// fitted pieces; gates keep the formula for their crossings, bracketed at the fit's knots.
+bool Engine::fit_formulas(double t_end) {
+  fitted_.assign(inputs_.size(), nullptr);
+  fit_cursor_.assign(inputs_.size(), 0);
+  FormulaFitOptions fo;
+  fo.every = opt_.every;
+  fo.t_end = t_end;
+  fo.tolerance = opt_.formula_tolerance;
+  fo.resolution = instant_;
+  // Replaces w by its fit; `slot` (sources only) receives the fit.
+  const auto fit = [&](WaveformPtr& w, int element, const FittedFormula** slot) -> bool {
+    const bool source = slot != nullptr;
+    if (!w || w->is_exact()) return true;
+    const Element& el = c_.elements[static_cast<std::size_t>(element)];
+    const std::string who = (source ? element_label(c_, element) : el.name + " gate") + ": " +
+                            w->describe();
+    const char* unit = el.kind == ElementKind::VoltageSource   ? "V"
+                       : el.kind == ElementKind::CurrentSource ? "A"
+                                                               : "";
+    FormulaFitResult r = fit_formula(w, fo);
+    if (!r.finite) {
+      diags_.push_back(make_diagnostic(
+          Severity::Error, el.where,
+          who + " is not finite at t = " + fmt_num(r.bad_at, "s") + " (its value is " +
+              (std::isnan(r.bad_value) ? std::string("NaN") : fmt_num(r.bad_value, unit)) + ")",
+          "the expression must be defined over the whole run, from 0 to the last sample "
+          "(guard a square root with max(0, ...), keep divisors away from 0)"));
+      sum_.status = Status::BadInput;
+      return false;
+    }
+    if (r.unbounded) {
+      diags_.push_back(make_diagnostic(
+          Severity::Error, el.where,
+          who + " grows without bound near t = " + fmt_num(r.unbounded_at, "s") +
+              " (its magnitude reaches " + fmt_num(r.unbounded_value, unit) +
+              " and keeps growing closer in): no fit can follow it",
+          "the expression must stay bounded over the whole run (a divisor that reaches 0?)"));
+      sum_.status = Status::BadInput;
+      return false;
+    }
+    if (source) {
+      sum_.formula_error = std::max(sum_.formula_error, r.error);
+      if (r.error > opt_.formula_tolerance) {
+        std::string msg = who + ": the fit's estimated error is " + fmt_num(r.error, "") +
+                          " of its peak (tolerance " + fmt_num(opt_.formula_tolerance, "") +
+                          "), largest near t = " + fmt_num(r.worst_at, "s");
+        msg += r.budget_reached ? "; the fit stopped at " + std::to_string(r.pieces) + " pieces"
+                                : "; the formula is not smooth there (a kink or a jump) or is "
+                                  "not smooth to rounding at this tolerance";
+        diags_.push_back(make_diagnostic(
+            Severity::Warning, el.where, msg,
+            "write a jump or a kink with step, pulse or points (exact), or loosen the tolerance"));
+      }
+      *slot = r.waveform.get();
+    }
+    w = r.waveform;
+    return true;
+  };
+  for (std::size_t j = 0; j < inputs_.size(); ++j)
+    if (!fit(inputs_[j], input_elements_[j], &fitted_[j])) return false;
+  for (std::size_t k = 0; k < gates_.size(); ++k)
+    if (!fit(gates_[k], gate_elements_[k], nullptr)) return false;
+  return true;
+}
+
+// The piece of input j from t on; true when its system (S, H) changed.
+bool Engine::set_piece(std::size_t j, double t) {
+  if (fitted_[j]) return fitted_source_piece(*fitted_[j], t, pieces_[j], &fit_cursor_[j]);
+  pieces_[j] = source_piece(inputs_[j]->piece(t).terms, time_scale_);
   return true;
 }
 
@@ -641,8 +734,8 @@ bool Engine::initial_state() {
       sum_.operating_point.push_back({part.name + ".i", x_op_(u), Dimension::ampere()});
   }
   // Initial pieces at t = 0 (right-continuous).
-  pieces_.clear();
-  for (const auto& w : inputs_) pieces_.push_back(source_piece(w->piece(0.0).terms, time_scale_));
+  pieces_.assign(inputs_.size(), SourcePiece{});
+  for (std::size_t j = 0; j < inputs_.size(); ++j) set_piece(j, 0.0);
   std::vector<Eigen::VectorXd> w;
   for (const auto& p : pieces_) w.push_back(p.w0);
   structure_ = intern_structure();
@@ -845,12 +938,12 @@ std::vector<Event> Engine::build_events(double t_end) {
 
 std::vector<int> Engine::update_pieces(const Event& ev) {
   std::vector<int> refreshed;
+  bool changed = false;
   for (const auto& [j, corner] : ev.sources) {
-    const auto sj = static_cast<std::size_t>(j);
-    pieces_[sj] = source_piece(inputs_[sj]->piece(corner).terms, time_scale_);
+    changed = set_piece(static_cast<std::size_t>(j), corner) || changed;
     refreshed.push_back(j);
   }
-  if (!refreshed.empty()) structure_ = intern_structure();
+  if (changed) structure_ = intern_structure();
   return refreshed;
 }
 
@@ -865,7 +958,9 @@ void Engine::reseat(const Eigen::VectorXd& in, Eigen::VectorXd& out, int from, i
   for (std::size_t j = 0; j < b.offset.size(); ++j) {
     const bool fresh = std::find(refreshed.begin(), refreshed.end(), static_cast<int>(j)) !=
                        refreshed.end();
-    if (fresh)
+    if (fresh && fitted_[j])  // a fit's coefficients: its current piece's (set_piece)
+      out.segment(r + b.offset[j], b.size[j]) = pieces_[j].w0 * in(r);
+    else if (fresh)
       out.segment(r + b.offset[j], b.size[j]) = b.w0.segment(b.offset[j], b.size[j]) * in(r);
     else
       out.segment(r + b.offset[j], b.size[j]) = in.segment(r + a.offset[j], a.size[j]);
@@ -911,6 +1006,26 @@ void Engine::keep(double t, bool left_limit) {
   dense_->keep(t, dense_last_id_, X_, left_limit);
 }
 
+// An interval in which a fitted formula starts new pieces: their coefficients are data in
+// the state, not structure, so a pattern matrix cannot be reused; step event by event
+// (the sub-step lengths repeat, so their propagators are cached). False: none does.
+bool Engine::steps_through_fitted(double t, double tn, std::size_t e_begin, std::size_t e_end,
+                                  const std::vector<Event>& events) {
+  bool any = false;
+  for (std::size_t i = e_begin; i < e_end && !any; ++i)
+    for (const auto& src : events[i].sources)
+      any = any || fitted_[static_cast<std::size_t>(src.first)] != nullptr;
+  if (!any) return false;
+  double tprev = t;
+  for (std::size_t i = e_begin; i < e_end; ++i) {
+    advance(events[i].t - tprev);
+    tprev = events[i].t;
+    handle(events[i]);
+  }
+  advance(tn - tprev);
+  return true;
+}
+
 // One output interval [t, t + every] with source corners strictly inside and
 // no switching: the map from X(t) to X(t + every) is linear, so when the same
 // pattern of corners recurs (pulse trains) it is cached as one matrix,
@@ -919,6 +1034,7 @@ void Engine::keep(double t, bool left_limit) {
 // unit vectors. A new pattern is stepped directly (actions on X).
 void Engine::interval_with_corners(double t, double tn, std::size_t e_begin, std::size_t e_end,
                                    const std::vector<Event>& events) {
+  if (steps_through_fitted(t, tn, e_begin, e_end, events)) return;
   struct Step {
     double length;
     int structure;            // structure during this step
@@ -1149,7 +1265,7 @@ TransientSummary Engine::run() {
   instant_ = kInstantUlps * std::numeric_limits<double>::epsilon() * std::max(t_end, opt_.every);
 
   try {
-    build_structure();
+    if (!build_structure(t_end)) return finish();
     if (!initial_state()) return finish();
     sum_.states = static_cast<std::size_t>(configs_[static_cast<std::size_t>(config_)].ss.A.rows());
     check_stability(config_);

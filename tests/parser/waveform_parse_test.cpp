@@ -97,6 +97,7 @@ TEST(WaveformParse, Formula) {
   auto w = source("formula(5*(1-exp(-t/2u))*sin(2*pi*1M*t))");
   ASSERT_TRUE(w);
   EXPECT_FALSE(w->is_exact());
+  EXPECT_EQ(w->describe(), "formula(5*(1-exp(-t/2u))*sin(2*pi*1M*t))");
   const double t = 0.3e-6;
   EXPECT_NEAR(w->value(t), 5 * (1 - std::exp(-t / 2e-6)) * std::sin(2 * std::numbers::pi * 1e6 * t), 1e-12);
   auto bad = testing::load("voltage V1 a gnd formula(exp(t))\nresistor R a gnd 1\n");

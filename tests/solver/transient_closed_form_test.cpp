@@ -383,24 +383,6 @@ TEST(Holds, ParallelHeldCapacitorsThatAgreeAreFine) {
   EXPECT_LT(max_error(r, 0, [&](double t) { return 2 * std::exp(-t / (1e3 * 4e-6)); }), 1e-12);
 }
 
-TEST(BadInput, FormulaSourceIsRejectedAtItsPosition) {
-  CircuitBuilder b;
-  const int v = b.voltage("V1", "a", "gnd",
-                          ringdown::make_formula([](double t) { return t; }, "t"));
-  b.element_of(v).where.line = 7;
-  b.element_of(v).where.column = 1;
-  b.resistor("R1", "a", "gnd", 1);
-  solver::TransientOptions opt;
-  opt.until = 1;
-  opt.every = 0.1;
-  Diagnostics d;
-  const auto r = solver::run_transient_sampled(b.c, {b.v("a")}, opt, d);
-  EXPECT_EQ(r.summary.status, solver::Status::BadInput);
-  ASSERT_FALSE(d.empty());
-  EXPECT_EQ(d.back().message, "formula() sources are not supported by the transient engine yet");
-  EXPECT_EQ(d.back().where.line, 7);
-}
-
 TEST(Unstable, NegativeResistanceGrowsExactlyWithAWarning) {
   // Parallel RLC with R < 0: alpha = 1/(2RC) < 0, the envelope grows as
   // e^{|alpha| t} (Nilsson & Riedel closed form, valid for either sign; from memory).
