@@ -1,13 +1,13 @@
 // ringdown's entry point: only wiring. Each command lives in its own file
 // (an options struct, setup_* binding its flags, run_* doing the work;
 // STYLE.md "CLI"); main registers them, parses, and dispatches.
-// Commands not yet implemented (compare) are not registered.
 #include <CLI/CLI.hpp>
 #include <exception>
 #include <new>
 
 #include "cli/arguments.hpp"
 #include "cli/atomic_file.hpp"
+#include "cli/compare.hpp"
 #include "cli/console.hpp"
 #include "cli/demo.hpp"
 #include "cli/exit_codes.hpp"
@@ -25,6 +25,7 @@ int main(int argc, char** argv) {
   configure_app(app);
   RunOptions run;
   CheckOptions check;
+  CompareOptions compare;
   InspectOptions inspect;
   ModesOptions modes;
   FmtOptions fmt;
@@ -32,6 +33,7 @@ int main(int argc, char** argv) {
   DemoOptions demo;
   CLI::App* run_command = setup_run(app, run);
   CLI::App* check_command = setup_check(app, check);
+  CLI::App* compare_command = setup_compare(app, compare);
   CLI::App* inspect_command = setup_inspect(app, inspect);
   CLI::App* modes_command = setup_modes(app, modes);
   CLI::App* fmt_command = setup_fmt(app, fmt);
@@ -42,6 +44,7 @@ int main(int argc, char** argv) {
   try {
     if (*run_command) return run_run(run);
     if (*check_command) return run_check(check);
+    if (*compare_command) return run_compare(compare);
     if (*inspect_command) return run_inspect(inspect);
     if (*modes_command) return run_modes(modes);
     if (*fmt_command) return run_fmt(fmt);
