@@ -117,23 +117,6 @@ std::unique_ptr<solver::SampledTrajectory> read_capture(const CompareOptions& o,
   return std::make_unique<solver::SampledTrajectory>(std::move(time), std::move(values));
 }
 
-bool write_json(const std::string& path, const nlohmann::json& j) {
-  AtomicFile file(path);
-  const std::string text = j.dump(2) + "\n";
-  if (!file.ok()) {
-    print_error(file.error());
-    return false;
-  }
-  if (std::fwrite(text.data(), 1, text.size(), file.stream()) != text.size()) {
-    print_error("cannot write '" + path + "': " + std::strerror(errno));
-    return false;
-  }
-  if (!file.commit()) {
-    print_error(file.error());
-    return false;
-  }
-  return true;
-}
 
 nlohmann::json value_json(const std::optional<solver::FigureValue>& v) {
   if (!v) return nullptr;
@@ -347,7 +330,7 @@ int run_compare(const CompareOptions& o) {
       if (r.pass_b) x["pass_b"] = *r.pass_b;
       j["expects"].push_back(x);
     }
-    if (!write_json(o.run.json, j)) return kExitBadInput;
+    if (!write_json_file(o.run.json, j)) return kExitBadInput;
   }
 
   // --- Overlay plot ----------------------------------------------------------------------

@@ -280,23 +280,6 @@ bool parse_tol(const std::string& text, double& tol) {
   return true;
 }
 
-bool write_json_file(const std::string& path, const nlohmann::json& j) {
-  AtomicFile file(path);
-  if (!file.ok()) {
-    print_error(file.error());
-    return false;
-  }
-  const std::string text = j.dump(2) + "\n";
-  if (std::fwrite(text.data(), 1, text.size(), file.stream()) != text.size()) {
-    print_error("cannot write '" + path + "': " + std::strerror(errno));
-    return false;
-  }
-  if (!file.commit()) {
-    print_error(file.error());
-    return false;
-  }
-  return true;
-}
 
 // --set and --record into the loader's options; false (printed) on a malformed entry.
 bool build_load_options(const RunOptions& options, LoadOptions& load_options) {
@@ -652,6 +635,24 @@ CLI::App* setup_check(CLI::App& app, CheckOptions& o) {
   cmd->add_option("--junit", o.junit, "write a JUnit XML report, one test case per expect")
       ->type_name("PATH");
   return cmd;
+}
+
+bool write_json_file(const std::string& path, const nlohmann::json& j) {
+  AtomicFile file(path);
+  if (!file.ok()) {
+    print_error(file.error());
+    return false;
+  }
+  const std::string text = j.dump(2) + "\n";
+  if (std::fwrite(text.data(), 1, text.size(), file.stream()) != text.size()) {
+    print_error("cannot write '" + path + "': " + std::strerror(errno));
+    return false;
+  }
+  if (!file.commit()) {
+    print_error(file.error());
+    return false;
+  }
+  return true;
 }
 
 SimulatedFile simulate_file(const RunOptions& options) {

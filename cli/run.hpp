@@ -9,6 +9,7 @@
 
 #include <functional>
 #include <memory>
+#include <nlohmann/json.hpp>
 #include <string>
 #include <vector>
 
@@ -75,6 +76,9 @@ struct SimulatedFile {
   std::vector<std::vector<double>> values;  // per recorded signal, at `time`
 };
 SimulatedFile simulate_file(const RunOptions& options);
+
+// Writes `j` (2-space indented) to `path` atomically; false (printed) on failure.
+bool write_json_file(const std::string& path, const nlohmann::json& j);
 
 // "a, b(c, d), e" -> {"a", "b(c, d)", "e"}: splits at commas outside
 // parentheses and trims blanks (a recorded signal may be an expression).
