@@ -129,13 +129,13 @@ std::string script(const BodeRequest& request, const solver::FrequencyResult& r,
                                 : std::function<double(double)>(degree_step);
     if (text) {
       gp << text_y_axis(low, high, frame.data_rows, step);
-      const std::string header = magnitude ? text_panel_header(db_label + ", " + key_title, names)
-                                           : deg_label;
+      const std::string header = magnitude
+                                     ? text_panel_header(db_label + ", " + key_title, names, plot_columns - 2)
+                                     : deg_label;
       gp << "set label 1 " << gnuplot_quoted(header) << " at graph 0, graph 1 left front offset 1,0\n";
       gp << "unset key\n";
     } else {
       gp << "set ylabel " << gnuplot_quoted(magnitude ? db_label : deg_label) << "\n";
-      gp << "set autoscale y\n";
       if (std::isfinite(low) && high > low) gp << "set ytics " << step((high - low) / (magnitude ? kImageDecibelTicks : kImageDegreeTicks)) << "\n";
       else gp << "set ytics autofreq\n";
       if (magnitude)

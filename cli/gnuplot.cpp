@@ -287,7 +287,13 @@ std::string text_y_axis(double low, double high, int data_rows,
   return gp.str();
 }
 
-std::string text_panel_header(const std::string& label, const std::vector<std::string>& names) {
+std::string fit_text(const std::string& text, int columns) {
+  const std::size_t room = static_cast<std::size_t>(std::max(columns, 4));
+  return text.size() <= room ? text : text.substr(0, room - 3) + "...";
+}
+
+std::string text_panel_header(const std::string& label, const std::vector<std::string>& names,
+                              int columns) {
   std::string out = label;
   for (std::size_t k = 0; k < names.size(); ++k) {
     out += k == 0 ? ": " : "  ";
@@ -295,16 +301,17 @@ std::string text_panel_header(const std::string& label, const std::vector<std::s
     out += ' ';
     out += names[k];
   }
-  return out;
+  return fit_text(out, columns);
 }
 
 std::string page_commands(const std::string& title, bool text, int columns) {
-  std::string shown = title;
-  const std::size_t room = static_cast<std::size_t>(std::max(columns - 2, 4));
-  if (text && shown.size() > room) shown = shown.substr(0, room - 3) + "...";
-  std::string out = "set multiplot title " + gnuplot_quoted(shown) + (text ? "" : " font 'sans,12'") + "\n";
-  // A text plot has no room for tick marks on all four sides.
+  std::string out = "set multiplot title " + gnuplot_quoted(text ? fit_text(title, columns - 2) : title) +
+                    (text ? "" : " font 'sans,12'") + "\n";
+  // A text plot has no room for tick marks on all four sides. An image's
+  // autoscaled y axis spans the data and 5 % of air at both ends (not out to
+  // the next tick), so a flat curve is not hidden in the border.
   if (text) out += "set xtics nomirror\nset ytics nomirror\n";
+  else out += "set autoscale yfix\nset offsets 0, 0, graph 0.05, graph 0.05\n";
   return out;
 }
 

@@ -99,10 +99,15 @@ std::string panel_commands(const PanelFrame& frame, const std::string& x_label);
 std::string text_y_axis(double low, double high, int data_rows,
                         const std::function<double(double)>& step_of = nice_step);
 
+// `text` cut to `columns` characters with "..." (gnuplot's text terminal
+// drops a label that does not fit instead of cutting it).
+std::string fit_text(const std::string& text, int columns);
+
 // The header a text panel carries in its top border instead of a y label and
 // a key (the text terminal neither rotates text nor keeps a key off the
-// curves): "voltage (V): * drain  # out".
-std::string text_panel_header(const std::string& label, const std::vector<std::string>& names);
+// curves): "voltage (V): * drain  # out", cut to `columns`.
+std::string text_panel_header(const std::string& label, const std::vector<std::string>& names,
+                              int columns);
 
 // Starts the page: `set multiplot` with the title (cut to the width of a
 // text plot, which drops a longer one), and the settings every plot shares.

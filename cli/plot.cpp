@@ -23,6 +23,7 @@ constexpr int kFrameHeightPx = 100;
 // rotated y label in an image, for "-2.5" and the tick mark in a text plot.
 constexpr int kImageLeftMargin = 12;
 constexpr int kTextLeftMargin = 8;
+constexpr int kRightMargin = 3;
 
 std::string quantity_word(const std::string& symbol) {
   if (symbol == "V") return "voltage";
@@ -72,7 +73,7 @@ std::string script(const PlotRequest& request, const PlotData& data, const Termi
   const Scale t_scale = si_scale(request.t_end, text);
   const std::string t_label = "time (" + t_scale.prefix + "s)";
   gp << page_commands(request.title, text, text_size.columns);
-  gp << "set lmargin " << (text ? kTextLeftMargin : kImageLeftMargin) << "\nset rmargin 3\n";
+  gp << "set lmargin " << (text ? kTextLeftMargin : kImageLeftMargin) << "\nset rmargin " << kRightMargin << "\n";
   if (text) gp << "unset key\n";
   else gp << "set grid\nset key top right box opaque\n";
   gp << "set xrange [0:" << request.t_end / t_scale.factor << "]\n";
@@ -95,7 +96,7 @@ std::string script(const PlotRequest& request, const PlotData& data, const Termi
       std::vector<std::string> names;
       for (std::size_t k : panel.signals) names.push_back(data.signals()[k].name);
       gp << text_y_axis(low / y.factor, high / y.factor, frames[p].data_rows);
-      gp << "set label 1 " << gnuplot_quoted(text_panel_header(y_label, names))
+      gp << "set label 1 " << gnuplot_quoted(text_panel_header(y_label, names, text_size.columns - kTextLeftMargin - kRightMargin - 2))
          << " at graph 0, graph 1 left front offset 1,0\n";
     } else {
       gp << "set ylabel " << gnuplot_quoted(y_label) << "\n";

@@ -35,6 +35,7 @@ constexpr int kCircleSegments = 180;
 constexpr int kPointTypes[] = {6, 4, 8, 12, 10, 14, 2, 1, 3};
 // Text plot: the key lines under the plot, the x label and the tick labels.
 constexpr int kTextAxisRows = 2;
+constexpr int kTextPlaneRows = 8;
 // Left margin of a text plot, characters ("-500" and the tick); columns a
 // tick label needs ("100k" and a blank either side).
 constexpr int kTextLeftMargin = 8;
@@ -104,6 +105,34 @@ void append_segments(std::ostringstream& gp, const std::vector<std::vector<Point
   gp << "e\n";
 }
 
+// Rows of a text plot's key: one per configuration, but never so many that
+// the plane gets fewer than kTextPlaneRows rows (the last line then refers
+// to the table for the rest).
+int text_key_rows(const PoleMapRequest& request, const TerminalSize& size) {
+  if (!has_key(request)) return 0;
+  const int room = std::max(1, size.lines - 3 - kTextAxisRows - kTextPlaneRows);
+  return std::min(static_cast<int>(request.sets.size()), room);
+}
+
+// Text placed on the plane: drawn as a `with labels` plot between the
+// guides and the poles, so a guide never cuts through a label and a label
+// never hides a pole.
+struct PlaneLabel {
+  double x = 0, y = 0;
+  std::string text;
+};
+
+// Labels as inline data: x, y and the text in double quotes (gnuplot 5.4
+// help "datafile": a quoted string is one column; the texts here hold no '"').
+void append_labels(std::ostringstream& gp, const std::vector<PlaneLabel>& labels) {
+  char line[64];
+  for (const PlaneLabel& l : labels) {
+    std::snprintf(line, sizeof line, "%.10g %.10g ", l.x, l.y);
+    gp << line << '"' << l.text << "\"\n";
+  }
+  gp << "e\n";
+}
+
 // The marker of configuration i in a text plot: its number, then letters.
 char text_marker(std::size_t i) {
   static constexpr char kMarkers[] = "123456789abcdefghijklmnopqrstuvwxyz";
@@ -117,7 +146,7 @@ std::string frame_commands(const PoleMapRequest& request, const Plane& plane, co
   std::ostringstream gp;
   gp.precision(10);
   gp << "set xrange [" << left << ":" << right << "]\nset yrange [" << -top << ":" << top << "]\n";
-  const int key_rows = has_key(request) ? static_cast<int>(request.sets.size()) : 0;
+  const int key_rows = text_key_rows(request, size);
   const double last_row = size.lines - 1;
   if (text) {
     // Under the plane: one row per configuration (its key line), the x label
@@ -125,10 +154,16 @@ std::string frame_commands(const PoleMapRequest& request, const Plane& plane, co
     gp << "set lmargin " << kTextLeftMargin << "\nset rmargin 2\nunset key\n";
     gp << "set tmargin at screen " << (size.lines - 2 + 0.25) / last_row << "\n";
     gp << "set bmargin at screen " << (key_rows + kTextAxisRows + 0.25) / last_row << "\n";
+    const std::size_t sets = request.sets.size();
     for (int i = 0; i < key_rows; ++i) {
-      const std::string line = std::string(1, text_marker(static_cast<std::size_t>(i))) + "  " +
-                               request.sets[static_cast<std::size_t>(i)].label;
-      gp << "set label " << i + 2 << " " << gnuplot_quoted(line) << " at screen 0, screen "
+      const auto k = static_cast<std::size_t>(i);
+      // Short of rows: the last line points to the table for the rest.
+      const std::string line =
+          i + 1 == key_rows && sets > k + 1
+              ? std::string(1, text_marker(k)) + ".." + text_marker(sets - 1) + "  configurations " +
+                    std::to_string(k + 1) + " to " + std::to_string(sets) + " of the table"
+              : std::string(1, text_marker(k)) + "  " + request.sets[k].label;
+      gp << "set label " << i + 2 << " " << gnuplot_quoted(fit_text(line, size.columns)) << " at screen 0, screen "
          << (key_rows - 1 - i + 0.25) / last_row << " left\n";
     }
   } else {
@@ -145,7 +180,7 @@ std::string frame_commands(const PoleMapRequest& request, const Plane& plane, co
   const std::string x_label = plane.log ? "real part   (log radius: one step per decade of |s|/" + two_pi + ")"
                                         : "Re(s)/" + two_pi + unit;
   const std::string y_label = plane.log ? "imaginary part" : "Im(s)/" + two_pi + unit;
-  gp << "set xlabel " << gnuplot_quoted(x_label) << "\n";
+  gp << "set xlabel " << gnuplot_quoted(text ? fit_text(x_label, size.columns - kTextLeftMargin) : x_label) << "\n";
   if (text) gp << "set label 1 " << gnuplot_quoted(y_label) << " at graph 0, graph 1 left front offset 1,0\n";
   else gp << "set ylabel " << gnuplot_quoted(y_label) << "\n";
   if (!plane.log) {
@@ -158,7 +193,7 @@ std::string frame_commands(const PoleMapRequest& request, const Plane& plane, co
 
 // The damping rays (upper and lower) as segments, and their labels.
 std::vector<std::vector<Point>> damping_rays(const Plane& plane, bool text, double left, double top,
-                                             std::ostringstream& gp, int& label) {
+                                             std::vector<PlaneLabel>& labels) {
   std::vector<std::vector<Point>> rays;
   for (double zeta : kZetaGuides) {
     const double dx = -zeta, dy = std::sqrt(1 - zeta * zeta);
@@ -169,8 +204,7 @@ std::vector<std::vector<Point>> damping_rays(const Plane& plane, bool text, doub
     std::snprintf(name, sizeof name, text ? "%.1f" : "\xCE\xB6 = %.1f", zeta);  // U+03B6 zeta
     // Just beyond the rim (logarithmic), or just short of the plane's edge.
     const double at = plane.log ? t * 1.02 : t * 0.93;
-    gp << "set label " << label++ << " " << gnuplot_quoted(name) << " at " << at * dx << "," << at * dy
-       << (text ? " right" : " right offset -0.4,0 tc rgb '#606060'") << "\n";
+    labels.push_back({at * dx, at * dy, name});
   }
   return rays;
 }
@@ -180,7 +214,7 @@ std::vector<std::vector<Point>> damping_rays(const Plane& plane, bool text, doub
 // poles) labelled ticks along the negative real axis, where a real pole of
 // that natural frequency sits.
 std::vector<std::vector<Point>> decade_marks(const Plane& plane, bool text, int plot_columns,
-                                             std::ostringstream& gp, int& label) {
+                                             std::ostringstream& gp, std::vector<PlaneLabel>& labels) {
   std::vector<std::vector<Point>> circles;
   if (!plane.log) return circles;
   const int first = static_cast<int>(std::floor(plane.centre)) + 1;
@@ -205,8 +239,7 @@ std::vector<std::vector<Point>> decade_marks(const Plane& plane, bool text, int 
       circle.emplace_back(r * std::cos(a), r * std::sin(a));
     }
     circles.push_back(std::move(circle));
-    gp << "set label " << label++ << " " << gnuplot_quoted(si_tick_label(std::pow(10.0, k), false) + " Hz")
-       << " at " << 0.02 * plane.radius << "," << r << " left offset 0,0.5 tc rgb '#606060'\n";
+    labels.push_back({0.02 * plane.radius, r, si_tick_label(std::pow(10.0, k), false) + " Hz"});
   }
   return circles;
 }
@@ -223,12 +256,14 @@ std::string script(const PoleMapRequest& request, const TerminalSize& size) {
   gp.precision(10);
   gp << page_commands(request.title, text, size.columns);
   gp << frame_commands(request, plane, size, left, right, top);
-  int label = 50;  // labels 1..49 are the frame's
-  const auto rays = damping_rays(plane, text, left, top, gp, label);
-  const auto circles = decade_marks(plane, text, size.columns - kTextLeftMargin - 2, gp, label);
+  std::vector<PlaneLabel> ray_labels, circle_labels;
+  const auto rays = damping_rays(plane, text, left, top, ray_labels);
+  const auto circles = decade_marks(plane, text, size.columns - kTextLeftMargin - 2, gp, circle_labels);
 
   gp << "plot '-' with lines " << (text ? "lt 0" : "lc rgb '#a8a8a8' dt 2") << " notitle";
   if (!circles.empty()) gp << ", '-' with lines lc rgb '#d8d8d8' notitle";
+  gp << ", '-' using 1:2:3 with labels right " << (text ? "" : "offset -0.4,0 tc rgb '#606060' ") << "notitle";
+  if (!circle_labels.empty()) gp << ", '-' using 1:2:3 with labels left offset 0,0.5 tc rgb '#606060' notitle";
   for (std::size_t i = 0; i < request.sets.size(); ++i) {
     gp << ", '-' with points ";
     if (text) gp << "pt " << gnuplot_quoted(std::string(1, text_marker(i)));
@@ -238,6 +273,8 @@ std::string script(const PoleMapRequest& request, const TerminalSize& size) {
   gp << "\n";
   append_segments(gp, rays);
   if (!circles.empty()) append_segments(gp, circles);
+  append_labels(gp, ray_labels);
+  if (!circle_labels.empty()) append_labels(gp, circle_labels);
   for (const PoleSet& set : request.sets) {
     std::vector<Point> points;
     for (std::complex<double> s : set.poles) points.push_back(plane.map(s));
