@@ -20,14 +20,8 @@ namespace {
 // panel (it carries more of the reading; common practice, no source).
 constexpr ImageSize kImage{1000, 720};
 constexpr double kMagnitudeWeight = 1.25, kPhaseWeight = 1.0;
-// Left margin in characters, the same for both panels so the frequency axes
-// line up (room for "-120" and the rotated label in an image).
-constexpr int kImageLeftMargin = 12;
-constexpr int kTextLeftMargin = 8;
 // A key outside the plot on the right: its sample line and padding, in characters.
 constexpr int kKeySampleChars = 12;
-// Text plot: columns a tick label needs ("100k" and a blank either side).
-constexpr int kTextTickColumns = 7;
 // Rounding slack when a tick sits on a sweep end (1e-9 relative, as
 // frequency_points does for its last point).
 constexpr double kEndSlack = 1e-9;
@@ -59,7 +53,8 @@ std::string xtics_command(const LogTicks& ticks, bool labels, bool text, int plo
   gp.precision(12);
   gp << "set xtics (";
   for (std::size_t i = 0; i < ticks.labelled.size(); ++i) {
-    const std::string label = labels && i % every == 0 ? si_tick_label(ticks.labelled[i], text) : "";
+    const std::string label =
+        labels && i % every == 0 ? si_tick_label(ticks.labelled[i], text) : "";
     gp << (i ? ", " : "") << gnuplot_quoted(label) << " " << ticks.labelled[i];
   }
   for (double v : ticks.minor) gp << ", '' " << v << " 1";
@@ -67,7 +62,8 @@ std::string xtics_command(const LogTicks& ticks, bool labels, bool text, int plo
   return gp.str();
 }
 
-std::vector<std::pair<double, double>> curve(const std::vector<double>& x, const std::vector<double>& y) {
+std::vector<std::pair<double, double>> curve(const std::vector<double>& x,
+                                             const std::vector<double>& y) {
   std::vector<std::pair<double, double>> points(x.size());
   for (std::size_t i = 0; i < x.size(); ++i) points[i] = {x[i], i < y.size() ? y[i] : std::nan("")};
   return points;
@@ -129,15 +125,19 @@ std::string script(const BodeRequest& request, const solver::FrequencyResult& r,
                                 : std::function<double(double)>(degree_step);
     if (text) {
       gp << text_y_axis(low, high, frame.data_rows, step);
-      const std::string header = magnitude
-                                     ? text_panel_header(db_label + ", " + key_title, names, plot_columns - 2)
-                                     : deg_label;
-      gp << "set label 1 " << gnuplot_quoted(header) << " at graph 0, graph 1 left front offset 1,0\n";
+      const std::string header =
+          magnitude ? text_panel_header(db_label + ", " + key_title, names, plot_columns - 2)
+                    : deg_label;
+      gp << "set label 1 " << gnuplot_quoted(header)
+         << " at graph 0, graph 1 left front offset 1,0\n";
       gp << "unset key\n";
     } else {
       gp << "set ylabel " << gnuplot_quoted(magnitude ? db_label : deg_label) << "\n";
-      if (std::isfinite(low) && high > low) gp << "set ytics " << step((high - low) / (magnitude ? kImageDecibelTicks : kImageDegreeTicks)) << "\n";
-      else gp << "set ytics autofreq\n";
+      if (std::isfinite(low) && high > low)
+        gp << "set ytics "
+           << step((high - low) / (magnitude ? kImageDecibelTicks : kImageDegreeTicks)) << "\n";
+      else
+        gp << "set ytics autofreq\n";
       if (magnitude)
         gp << "set key outside right top Left reverse title " << gnuplot_quoted(key_title) << "\n";
       else
@@ -164,7 +164,9 @@ LogTicks log_ticks(double low, double high) {
   if (!(low > 0) || !(high > low) || !std::isfinite(high)) return ticks;
   const int first = static_cast<int>(std::floor(std::log10(low)));
   const int last = static_cast<int>(std::ceil(std::log10(high)));
-  const auto inside = [&](double v) { return v >= low * (1 - kEndSlack) && v <= high * (1 + kEndSlack); };
+  const auto inside = [&](double v) {
+    return v >= low * (1 - kEndSlack) && v <= high * (1 + kEndSlack);
+  };
   const std::vector<std::vector<int>> candidates = {{1}, {1, 2, 5}, {1, 2, 3, 4, 5, 6, 7, 8, 9}};
   for (const std::vector<int>& labelled : candidates) {
     ticks = {};
@@ -185,14 +187,15 @@ LogTicks log_ticks(double low, double high) {
   return ticks;
 }
 
-bool draw_bode(const BodeRequest& request, const solver::FrequencyResult& result, std::string& error) {
+bool draw_bode(const BodeRequest& request, const solver::FrequencyResult& result,
+               std::string& error) {
   if (result.freq.empty() || !(request.from > 0) || !(request.to > request.from)) {
     error = "--plot: the sweep has no frequency range to plot";
     return false;
   }
   return render_figure(
-      request.target, kImage, [&](const TerminalSize& size) { return script(request, result, size); },
-      error);
+      request.target, kImage,
+      [&](const TerminalSize& size) { return script(request, result, size); }, error);
 }
 
 }  // namespace ringdown::cli

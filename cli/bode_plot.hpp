@@ -17,8 +17,8 @@ namespace ringdown::cli {
 
 struct BodeRequest {
   PlotTarget target;
-  std::string title;  // the circuit's title (or file name)
-  std::string input;  // the input source's name
+  std::string title;        // the circuit's title (or file name)
+  std::string input;        // the input source's name
   double from = 0, to = 0;  // the sweep's ends, Hz: the frequency axis
 };
 
@@ -34,6 +34,7 @@ LogTicks log_ticks(double low, double high);
 
 // Draws the plot; false with `error` set when gnuplot fails (the target is
 // then untouched).
-bool draw_bode(const BodeRequest& request, const solver::FrequencyResult& result, std::string& error);
+bool draw_bode(const BodeRequest& request, const solver::FrequencyResult& result,
+               std::string& error);
 
 }  // namespace ringdown::cli

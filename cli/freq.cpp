@@ -184,7 +184,8 @@ CLI::App* setup_freq(CLI::App& app, FreqOptions& o) {
       ->allow_extra_args(false);
   cmd->add_option("--csv", o.csv, "write freq,<signal>.db,<signal>.deg,... ('-': stdout)")
       ->type_name("PATH");
-  cmd->add_option("--plot", o.plot, "Bode plot of the recorded signals: term, or PATH.png|.svg|.pdf")
+  cmd->add_option("--plot", o.plot,
+                  "Bode plot of the recorded signals: term, or PATH.png|.svg|.pdf")
       ->type_name("TARGET");
   cmd->add_option("--digits", o.digits, "significant digits in the CSV (default 12)")
       ->type_name("N")
@@ -201,7 +202,8 @@ int run_freq(const FreqOptions& o) {
     return kExitBadInput;
   }
   std::optional<PlotTarget> plot_target;
-  if (!o.plot.empty() && !(plot_target = plot_target_or_report(o.plot, o.csv == "-"))) return kExitBadInput;
+  if (!o.plot.empty() && !(plot_target = plot_target_or_report(o.plot, o.csv == "-")))
+    return kExitBadInput;
   std::optional<double> flag_from, flag_to, phase_at;
   if (!o.from.empty() && !(flag_from = frequency_flag("--from", o.from))) return kExitBadInput;
   if (!o.to.empty() && !(flag_to = frequency_flag("--to", o.to))) return kExitBadInput;
@@ -342,8 +344,8 @@ int run_freq(const FreqOptions& o) {
   int warning_count = 0;
   for (const Diagnostic& d : warnings) warning_count += d.severity == Severity::Warning;
   if (!o.quiet)
-    print_summary(csv_to_stdout ? stderr : stdout, c, c.parts[static_cast<std::size_t>(input)], from, to,
-                  per_decade, r, phase_at, o.csv, o.plot, warning_count);
+    print_summary(csv_to_stdout ? stderr : stdout, c, c.parts[static_cast<std::size_t>(input)],
+                  from, to, per_decade, r, phase_at, o.csv, o.plot, warning_count);
   int status = kExitOk;
   if (plot_target) {
     if (!o.quiet && plot_target->text()) std::fputc('\n', stdout);

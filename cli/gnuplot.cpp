@@ -62,13 +62,15 @@ bool file_has_signature(const std::string& path, PlotTarget::Kind kind) {
     case PlotTarget::Kind::Png:
       return n >= 8 && std::equal(kPngSignature, kPngSignature + 8,
                                   reinterpret_cast<const unsigned char*>(head));
-    case PlotTarget::Kind::Pdf: return text.substr(0, 5) == "%PDF-";
+    case PlotTarget::Kind::Pdf:
+      return text.substr(0, 5) == "%PDF-";
     case PlotTarget::Kind::Svg: {
       const auto first = text.find_first_not_of(" \t\r\n");
       return first != std::string_view::npos &&
              (text.substr(first, 5) == "<?xml" || text.substr(first, 4) == "<svg");
     }
-    case PlotTarget::Kind::Terminal: return n > 0;
+    case PlotTarget::Kind::Terminal:
+      return n > 0;
   }
   return false;
 }
@@ -89,7 +91,8 @@ std::string terminal_commands(const PlotTarget& target, ImageSize image, const T
          << image.height / 100.0 << "in font 'sans,9'\n";
       break;
     case PlotTarget::Kind::Terminal:
-      gp << "set terminal dumb noenhanced nofeed size " << text.columns << "," << text.lines << "\n";
+      gp << "set terminal dumb noenhanced nofeed size " << text.columns << "," << text.lines
+         << "\n";
       break;
   }
   return gp.str();
@@ -98,7 +101,8 @@ std::string terminal_commands(const PlotTarget& target, ImageSize image, const T
 // Runs gnuplot on `commands`; SIGPIPE is ignored meanwhile so a gnuplot that
 // exits early gives a write error here instead of killing ringdown.
 bool run_gnuplot(const std::string& commands, std::string& error) {
-  struct sigaction ignore {}, previous {};
+  struct sigaction ignore {
+  }, previous{};
   ignore.sa_handler = SIG_IGN;
   sigemptyset(&ignore.sa_mask);
   ::sigaction(SIGPIPE, &ignore, &previous);
@@ -164,7 +168,8 @@ std::optional<PlotTarget> plot_target_or_report(const std::string& text, bool cs
     return std::nullopt;
   }
   if (!gnuplot_available()) {
-    print_error("--plot needs gnuplot, which is not on PATH", "install the Debian package gnuplot-nox");
+    print_error("--plot needs gnuplot, which is not on PATH",
+                "install the Debian package gnuplot-nox");
     return std::nullopt;
   }
   return target;
@@ -262,8 +267,10 @@ std::string panel_commands(const PanelFrame& frame, const std::string& x_label) 
   std::ostringstream gp;
   gp.precision(10);
   gp << "set tmargin at screen " << frame.top << "\nset bmargin at screen " << frame.bottom << "\n";
-  if (frame.lowest) gp << "set format x '% h'\nset xlabel " << gnuplot_quoted(x_label) << "\n";
-  else gp << "set format x ''\nset xlabel ''\n";
+  if (frame.lowest)
+    gp << "set format x '% h'\nset xlabel " << gnuplot_quoted(x_label) << "\n";
+  else
+    gp << "set format x ''\nset xlabel ''\n";
   return gp.str();
 }
 
@@ -305,13 +312,16 @@ std::string text_panel_header(const std::string& label, const std::vector<std::s
 }
 
 std::string page_commands(const std::string& title, bool text, int columns) {
-  std::string out = "set multiplot title " + gnuplot_quoted(text ? fit_text(title, columns - 2) : title) +
+  std::string out = "set multiplot title " +
+                    gnuplot_quoted(text ? fit_text(title, columns - 2) : title) +
                     (text ? "" : " font 'sans,12'") + "\n";
   // A text plot has no room for tick marks on all four sides. An image's
   // autoscaled y axis spans the data and 5 % of air at both ends (not out to
   // the next tick), so a flat curve is not hidden in the border.
-  if (text) out += "set xtics nomirror\nset ytics nomirror\n";
-  else out += "set autoscale yfix\nset offsets 0, 0, graph 0.05, graph 0.05\n";
+  if (text)
+    out += "set xtics nomirror\nset ytics nomirror\n";
+  else
+    out += "set autoscale yfix\nset offsets 0, 0, graph 0.05, graph 0.05\n";
   return out;
 }
 
@@ -350,7 +360,8 @@ bool render_figure(const PlotTarget& target, ImageSize image,
   // scroll its title away.
   size.lines = std::max(size.lines - 1, kMinLines);
   const std::string commands = terminal_commands(target, image, size) + "set output " +
-                               gnuplot_quoted(out.temp_path()) + "\n" + body(size) + "unset output\n";
+                               gnuplot_quoted(out.temp_path()) + "\n" + body(size) +
+                               "unset output\n";
   if (!run_gnuplot(commands, error)) return false;
   if (!file_has_signature(out.temp_path(), target.kind)) {
     error = "gnuplot did not produce a valid " +

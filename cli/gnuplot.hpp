@@ -22,6 +22,15 @@
 
 namespace ringdown::cli {
 
+// Left margin in characters, the same for every panel of a page so their x
+// axes line up whatever the width of their tick labels: room for "-500" and a
+// rotated y label in an image, for "-2.5" and the tick mark in a text plot.
+// A tick label of a text plot needs kTextTickColumns ("100k" and a blank
+// either side).
+inline constexpr int kImageLeftMargin = 12;
+inline constexpr int kTextLeftMargin = 8;
+inline constexpr int kTextTickColumns = 7;
+
 struct PlotTarget {
   enum class Kind { Terminal, Png, Svg, Pdf };
   Kind kind = Kind::Terminal;
@@ -75,7 +84,7 @@ struct ImageSize {
 // Where one panel of a stack sits (gnuplot "screen" fractions of the page).
 struct PanelFrame {
   double top = 1, bottom = 0;
-  int data_rows = 0;   // text plot: rows inside the borders; 0 for images
+  int data_rows = 0;    // text plot: rows inside the borders; 0 for images
   bool lowest = false;  // carries the x tick labels and the x label
 };
 

@@ -18,11 +18,7 @@ namespace {
 constexpr int kImageWidthPx = 1000;
 constexpr int kPanelHeightPx = 270;
 constexpr int kFrameHeightPx = 100;
-// Left margin in characters, the same for every panel so their time axes
-// line up whatever the width of their tick labels: room for "-500" and a
-// rotated y label in an image, for "-2.5" and the tick mark in a text plot.
-constexpr int kImageLeftMargin = 12;
-constexpr int kTextLeftMargin = 8;
+// Right margin in characters (the left one is gnuplot.hpp's).
 constexpr int kRightMargin = 3;
 
 std::string quantity_word(const std::string& symbol) {
@@ -62,7 +58,8 @@ std::vector<Panel> panels_by_unit(const std::vector<PlotSignal>& signals) {
 
 // The gnuplot commands after the terminal: one panel per unit, each a `plot`
 // with inline data, stacked over the time axis.
-std::string script(const PlotRequest& request, const PlotData& data, const TerminalSize& text_size) {
+std::string script(const PlotRequest& request, const PlotData& data,
+                   const TerminalSize& text_size) {
   const bool text = request.target.text();
   const std::vector<Panel> panels = panels_by_unit(data.signals());
   const std::vector<PanelFrame> frames = stack_panels(
@@ -73,9 +70,12 @@ std::string script(const PlotRequest& request, const PlotData& data, const Termi
   const Scale t_scale = si_scale(request.t_end, text);
   const std::string t_label = "time (" + t_scale.prefix + "s)";
   gp << page_commands(request.title, text, text_size.columns);
-  gp << "set lmargin " << (text ? kTextLeftMargin : kImageLeftMargin) << "\nset rmargin " << kRightMargin << "\n";
-  if (text) gp << "unset key\n";
-  else gp << "set grid\nset key top right box opaque\n";
+  gp << "set lmargin " << (text ? kTextLeftMargin : kImageLeftMargin) << "\nset rmargin "
+     << kRightMargin << "\n";
+  if (text)
+    gp << "unset key\n";
+  else
+    gp << "set grid\nset key top right box opaque\n";
   gp << "set xrange [0:" << request.t_end / t_scale.factor << "]\n";
   if (panels.empty()) {
     gp << panel_commands(frames.front(), t_label);
@@ -96,7 +96,9 @@ std::string script(const PlotRequest& request, const PlotData& data, const Termi
       std::vector<std::string> names;
       for (std::size_t k : panel.signals) names.push_back(data.signals()[k].name);
       gp << text_y_axis(low / y.factor, high / y.factor, frames[p].data_rows);
-      gp << "set label 1 " << gnuplot_quoted(text_panel_header(y_label, names, text_size.columns - kTextLeftMargin - kRightMargin - 2))
+      gp << "set label 1 "
+         << gnuplot_quoted(text_panel_header(
+                y_label, names, text_size.columns - kTextLeftMargin - kRightMargin - 2))
          << " at graph 0, graph 1 left front offset 1,0\n";
     } else {
       gp << "set ylabel " << gnuplot_quoted(y_label) << "\n";
@@ -108,7 +110,8 @@ std::string script(const PlotRequest& request, const PlotData& data, const Termi
          << gnuplot_quoted(data.signals()[panel.signals[i]].name);
     }
     gp << "\n";
-    for (std::size_t k : panel.signals) append_points(gp, data.points()[k], t_scale.factor, y.factor);
+    for (std::size_t k : panel.signals)
+      append_points(gp, data.points()[k], t_scale.factor, y.factor);
   }
   gp << "unset multiplot\n";
   return gp.str();
@@ -167,7 +170,8 @@ void PlotData::finish() {
 }
 
 bool draw_plot(const PlotRequest& request, const PlotData& data, std::string& error) {
-  const int panels = static_cast<int>(std::max<std::size_t>(panels_by_unit(data.signals()).size(), 1));
+  const int panels =
+      static_cast<int>(std::max<std::size_t>(panels_by_unit(data.signals()).size(), 1));
   const ImageSize image{kImageWidthPx, kFrameHeightPx + panels * kPanelHeightPx};
   return render_figure(
       request.target, image, [&](const TerminalSize& size) { return script(request, data, size); },

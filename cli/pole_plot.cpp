@@ -36,10 +36,6 @@ constexpr int kPointTypes[] = {6, 4, 8, 12, 10, 14, 2, 1, 3};
 // Text plot: the key lines under the plot, the x label and the tick labels.
 constexpr int kTextAxisRows = 2;
 constexpr int kTextPlaneRows = 8;
-// Left margin of a text plot, characters ("-500" and the tick); columns a
-// tick label needs ("100k" and a blank either side).
-constexpr int kTextLeftMargin = 8;
-constexpr int kTextTickColumns = 7;
 
 using Point = std::pair<double, double>;
 
@@ -49,9 +45,9 @@ bool has_key(const PoleMapRequest& request) { return request.sets.size() > 1; }
 // Where a pole goes on the page, in plot units.
 struct Plane {
   bool log = false;
-  Scale scale;       // linear: Hz per plot unit and its prefix
-  double centre = 0; // logarithmic: log10 of the natural frequency at the centre
-  double radius = 1; // the farthest pole's distance (linear) or the rim (logarithmic)
+  Scale scale;        // linear: Hz per plot unit and its prefix
+  double centre = 0;  // logarithmic: log10 of the natural frequency at the centre
+  double radius = 1;  // the farthest pole's distance (linear) or the rim (logarithmic)
 
   Point map(std::complex<double> s) const {
     const std::complex<double> hz = s / kTwoPi;
@@ -140,8 +136,8 @@ char text_marker(std::size_t i) {
 }
 
 // The page's frame: ranges, margins, key and axis labels.
-std::string frame_commands(const PoleMapRequest& request, const Plane& plane, const TerminalSize& size,
-                           double left, double right, double top) {
+std::string frame_commands(const PoleMapRequest& request, const Plane& plane,
+                           const TerminalSize& size, double left, double right, double top) {
   const bool text = request.target.text();
   std::ostringstream gp;
   gp.precision(10);
@@ -158,13 +154,13 @@ std::string frame_commands(const PoleMapRequest& request, const Plane& plane, co
     for (int i = 0; i < key_rows; ++i) {
       const auto k = static_cast<std::size_t>(i);
       // Short of rows: the last line points to the table for the rest.
-      const std::string line =
-          i + 1 == key_rows && sets > k + 1
-              ? std::string(1, text_marker(k)) + ".." + text_marker(sets - 1) + "  configurations " +
-                    std::to_string(k + 1) + " to " + std::to_string(sets) + " of the table"
-              : std::string(1, text_marker(k)) + "  " + request.sets[k].label;
-      gp << "set label " << i + 2 << " " << gnuplot_quoted(fit_text(line, size.columns)) << " at screen 0, screen "
-         << (key_rows - 1 - i + 0.25) / last_row << " left\n";
+      const std::string line = i + 1 == key_rows && sets > k + 1
+                                   ? std::string(1, text_marker(k)) + ".." + text_marker(sets - 1) +
+                                         "  configurations " + std::to_string(k + 1) + " to " +
+                                         std::to_string(sets) + " of the table"
+                                   : std::string(1, text_marker(k)) + "  " + request.sets[k].label;
+      gp << "set label " << i + 2 << " " << gnuplot_quoted(fit_text(line, size.columns))
+         << " at screen 0, screen " << (key_rows - 1 - i + 0.25) / last_row << " left\n";
     }
   } else {
     // One scale on both axes, so the rays keep their angles.
@@ -177,16 +173,23 @@ std::string frame_commands(const PoleMapRequest& request, const Plane& plane, co
   }
   const std::string two_pi = text ? "2pi" : "2\xCF\x80";  // U+03C0 pi
   const std::string unit = " (" + plane.scale.prefix + "Hz)";
-  const std::string x_label = plane.log ? "real part   (log radius: one step per decade of |s|/" + two_pi + ")"
-                                        : "Re(s)/" + two_pi + unit;
+  const std::string x_label =
+      plane.log ? "real part   (log radius: one step per decade of |s|/" + two_pi + ")"
+                : "Re(s)/" + two_pi + unit;
   const std::string y_label = plane.log ? "imaginary part" : "Im(s)/" + two_pi + unit;
-  gp << "set xlabel " << gnuplot_quoted(text ? fit_text(x_label, size.columns - kTextLeftMargin) : x_label) << "\n";
-  if (text) gp << "set label 1 " << gnuplot_quoted(y_label) << " at graph 0, graph 1 left front offset 1,0\n";
-  else gp << "set ylabel " << gnuplot_quoted(y_label) << "\n";
+  gp << "set xlabel "
+     << gnuplot_quoted(text ? fit_text(x_label, size.columns - kTextLeftMargin) : x_label) << "\n";
+  if (text)
+    gp << "set label 1 " << gnuplot_quoted(y_label)
+       << " at graph 0, graph 1 left front offset 1,0\n";
+  else
+    gp << "set ylabel " << gnuplot_quoted(y_label) << "\n";
   if (!plane.log) {
     gp << "set format '% h'\n";
-    if (text) gp << text_y_axis(-top, top, size.lines - 2 - (key_rows + kTextAxisRows) - 1);
-    else gp << "set style line 100 lc rgb '#e4e4e4' lw 1\nset grid xtics ytics ls 100\n";
+    if (text)
+      gp << text_y_axis(-top, top, size.lines - 2 - (key_rows + kTextAxisRows) - 1);
+    else
+      gp << "set style line 100 lc rgb '#e4e4e4' lw 1\nset grid xtics ytics ls 100\n";
   }
   return gp.str();
 }
@@ -214,19 +217,23 @@ std::vector<std::vector<Point>> damping_rays(const Plane& plane, bool text, doub
 // poles) labelled ticks along the negative real axis, where a real pole of
 // that natural frequency sits.
 std::vector<std::vector<Point>> decade_marks(const Plane& plane, bool text, int plot_columns,
-                                             std::ostringstream& gp, std::vector<PlaneLabel>& labels) {
+                                             std::ostringstream& gp,
+                                             std::vector<PlaneLabel>& labels) {
   std::vector<std::vector<Point>> circles;
   if (!plane.log) return circles;
   const int first = static_cast<int>(std::floor(plane.centre)) + 1;
   const int last = static_cast<int>(std::floor(plane.centre + plane.radius));
   if (text) {
     // A label every k-th decade so labels ("100k") stay apart.
-    const double columns_per_decade = plot_columns / (kReach * plane.radius + kRightStrip * plane.radius);
-    const int every = std::max(1, static_cast<int>(std::ceil(kTextTickColumns / columns_per_decade)));
+    const double columns_per_decade =
+        plot_columns / (kReach * plane.radius + kRightStrip * plane.radius);
+    const int every =
+        std::max(1, static_cast<int>(std::ceil(kTextTickColumns / columns_per_decade)));
     gp << "set xtics (";
     for (int k = first; k <= last; ++k)
-      gp << (k > first ? ", " : "") << gnuplot_quoted((k - first) % every ? "" : si_tick_label(std::pow(10.0, k), true))
-         << " " << -(k - plane.centre);
+      gp << (k > first ? ", " : "")
+         << gnuplot_quoted((k - first) % every ? "" : si_tick_label(std::pow(10.0, k), true)) << " "
+         << -(k - plane.centre);
     gp << ")\nunset ytics\n";
     return circles;
   }
@@ -258,16 +265,21 @@ std::string script(const PoleMapRequest& request, const TerminalSize& size) {
   gp << frame_commands(request, plane, size, left, right, top);
   std::vector<PlaneLabel> ray_labels, circle_labels;
   const auto rays = damping_rays(plane, text, left, top, ray_labels);
-  const auto circles = decade_marks(plane, text, size.columns - kTextLeftMargin - 2, gp, circle_labels);
+  const auto circles =
+      decade_marks(plane, text, size.columns - kTextLeftMargin - 2, gp, circle_labels);
 
   gp << "plot '-' with lines " << (text ? "lt 0" : "lc rgb '#a8a8a8' dt 2") << " notitle";
   if (!circles.empty()) gp << ", '-' with lines lc rgb '#d8d8d8' notitle";
-  gp << ", '-' using 1:2:3 with labels right " << (text ? "" : "offset -0.4,0 tc rgb '#606060' ") << "notitle";
-  if (!circle_labels.empty()) gp << ", '-' using 1:2:3 with labels left offset 0,0.5 tc rgb '#606060' notitle";
+  gp << ", '-' using 1:2:3 with labels right " << (text ? "" : "offset -0.4,0 tc rgb '#606060' ")
+     << "notitle";
+  if (!circle_labels.empty())
+    gp << ", '-' using 1:2:3 with labels left offset 0,0.5 tc rgb '#606060' notitle";
   for (std::size_t i = 0; i < request.sets.size(); ++i) {
     gp << ", '-' with points ";
-    if (text) gp << "pt " << gnuplot_quoted(std::string(1, text_marker(i)));
-    else gp << "lt " << i + 1 << " pt " << kPointTypes[i % std::size(kPointTypes)] << " ps 1.8 lw 1.5";
+    if (text)
+      gp << "pt " << gnuplot_quoted(std::string(1, text_marker(i)));
+    else
+      gp << "lt " << i + 1 << " pt " << kPointTypes[i % std::size(kPointTypes)] << " ps 1.8 lw 1.5";
     gp << " title " << gnuplot_quoted(std::to_string(i + 1) + ": " + request.sets[i].label);
   }
   gp << "\n";
@@ -278,8 +290,10 @@ std::string script(const PoleMapRequest& request, const TerminalSize& size) {
   for (const PoleSet& set : request.sets) {
     std::vector<Point> points;
     for (std::complex<double> s : set.poles) points.push_back(plane.map(s));
-    if (points.empty()) gp << "NaN NaN\ne\n";  // a configuration without poles
-    else append_points(gp, points);
+    if (points.empty())
+      gp << "NaN NaN\ne\n";  // a configuration without poles
+    else
+      append_points(gp, points);
   }
   gp << "unset multiplot\n";
   return gp.str();
@@ -294,7 +308,8 @@ bool logarithmic_radius(const std::vector<PoleSet>& sets) {
 
 bool draw_pole_map(const PoleMapRequest& request, std::string& error) {
   return render_figure(
-      request.target, has_key(request) ? kImageWithKey : kImageAlone, [&](const TerminalSize& size) { return script(request, size); }, error);
+      request.target, has_key(request) ? kImageWithKey : kImageAlone,
+      [&](const TerminalSize& size) { return script(request, size); }, error);
 }
 
 }  // namespace ringdown::cli

@@ -30,8 +30,8 @@ namespace ringdown::cli {
 inline constexpr double kLinearSpread = 100;
 
 struct PoleSet {
-  std::string label;                         // "Q1 closed, Dsec open (from 4 us)"
-  std::vector<std::complex<double>> poles;   // 1/s, conjugates included
+  std::string label;                        // "Q1 closed, Dsec open (from 4 us)"
+  std::vector<std::complex<double>> poles;  // 1/s, conjugates included
 };
 
 struct PoleMapRequest {

@@ -25,6 +25,7 @@
 #include "cli/gnuplot.hpp"
 #include "cli/pole_plot.hpp"
 #include "process.hpp"
+#include "scratch_dir.hpp"
 
 namespace fs = std::filesystem;
 using ringdown::test::ProcessResult;
@@ -111,7 +112,8 @@ std::vector<std::string> plot_lines(const std::string& out, const std::string& t
 
 // The plot fits: no line wider than `columns`, no more lines than `lines`,
 // and it uses the room it has (within a few columns and rows).
-void expect_fits(const std::vector<std::string>& plot, int columns, int lines, const std::string& what) {
+void expect_fits(const std::vector<std::string>& plot, int columns, int lines,
+                 const std::string& what) {
   ASSERT_FALSE(plot.empty()) << what;
   std::size_t widest = 0;
   for (const std::string& line : plot) widest = std::max(widest, line.size());
@@ -137,33 +139,8 @@ std::vector<int> panel_data_rows(const std::vector<std::string>& plot) {
   return panels;
 }
 
-class PlotCli : public ::testing::Test {
+class PlotCli : public ringdown::test::ScratchDirTest {
  protected:
-  void SetUp() override {
-    char pattern[] = "/tmp/ringdown-plot-test-XXXXXX";
-    ASSERT_NE(::mkdtemp(pattern), nullptr);
-    dir_ = pattern;
-  }
-  void TearDown() override { fs::remove_all(dir_); }
-  std::string write(const std::string& name, const std::string& text) {
-    const fs::path path = dir_ / name;
-    std::ofstream(path, std::ios::binary) << text;
-    return path.string();
-  }
-  std::string path(const std::string& name) const { return (dir_ / name).string(); }
-  static std::string read_all(const std::string& path) {
-    std::ifstream in(path, std::ios::binary);
-    std::ostringstream s;
-    s << in.rdbuf();
-    return s.str();
-  }
-  // Temporaries: names starting with '.'.
-  std::vector<std::string> hidden_files() const {
-    std::vector<std::string> out;
-    for (const auto& e : fs::directory_iterator(dir_))
-      if (e.path().filename().string().front() == '.') out.push_back(e.path().filename().string());
-    return out;
-  }
   // A directory with a stand-in `gnuplot` script, for PATH.
   std::string fake_gnuplot(const std::string& body) {
     const fs::path bin = dir_ / "fakebin";
@@ -173,7 +150,6 @@ class PlotCli : public ::testing::Test {
     ::chmod(script.c_str(), 0755);
     return bin.string() + ":/usr/bin:/bin";
   }
-  fs::path dir_;
 };
 
 // --- files --------------------------------------------------------------------
@@ -188,8 +164,9 @@ TEST_F(PlotCli, BodePlotFilesAreComplete) {
     expect_complete(bytes, extension);
     if (std::string(extension) == "svg") {
       // The title, the legend from the record names, SI-prefixed ticks.
-      for (const char* text : {"RC low-pass for plots", ">out<", ">R1.i<", ">1k<", ">10k<", ">100k<", ">1M<",
-                               "magnitude (dB)", "phase (deg)", "frequency (Hz)", "input V1"})
+      for (const char* text :
+           {"RC low-pass for plots", ">out<", ">R1.i<", ">1k<", ">10k<", ">100k<", ">1M<",
+            "magnitude (dB)", "phase (deg)", "frequency (Hz)", "input V1"})
         EXPECT_NE(bytes.find(text), std::string::npos) << text;
     }
   }
@@ -211,9 +188,10 @@ TEST_F(PlotCli, PoleMapFilesAreComplete) {
   const std::string svg = read_all(path("sw.svg"));
   // Title, the damping-ratio guides, a key line per switch configuration,
   // Hz-equivalent axes (U+03B6 zeta and U+03C0 pi in UTF-8).
-  for (const char* text : {"Series RLC with a switched damping resistor", "\xCE\xB6 = 0.1", "\xCE\xB6 = 0.3",
-                           "\xCE\xB6 = 0.5", "\xCE\xB6 = 0.7", "1: S1 open (from 0 s)",
-                           "2: S1 closed (from 1 ms)", "Re(s)/2\xCF\x80 (kHz)", "Im(s)/2\xCF\x80 (kHz)"})
+  for (const char* text :
+       {"Series RLC with a switched damping resistor", "\xCE\xB6 = 0.1", "\xCE\xB6 = 0.3",
+        "\xCE\xB6 = 0.5", "\xCE\xB6 = 0.7", "1: S1 open (from 0 s)", "2: S1 closed (from 1 ms)",
+        "Re(s)/2\xCF\x80 (kHz)", "Im(s)/2\xCF\x80 (kHz)"})
     EXPECT_NE(svg.find(text), std::string::npos) << text;
   // The spread circuit: logarithmic radius with decade circles labelled in Hz.
   const std::string log_svg = read_all(path("spread.svg"));
@@ -227,8 +205,9 @@ TEST_F(PlotCli, PoleMapFilesAreComplete) {
 TEST_F(PlotCli, BodeTerminalPlotFitsAndIsLabelled) {
   const std::string file = write("rc.rlc", kLowPass);
   for (auto [columns, lines] : {std::pair{60, 20}, std::pair{100, 30}, std::pair{40, 14}}) {
-    const ProcessResult r = run_ringdown({"freq", file, "--plot", "term", "--quiet"},
-                                         {{"COLUMNS", std::to_string(columns)}, {"LINES", std::to_string(lines)}});
+    const ProcessResult r =
+        run_ringdown({"freq", file, "--plot", "term", "--quiet"},
+                     {{"COLUMNS", std::to_string(columns)}, {"LINES", std::to_string(lines)}});
     ASSERT_EQ(r.exit_code, kOk) << r.err;
     const auto plot = lines_of(r.out);
     const std::string what = "freq " + std::to_string(columns) + "x" + std::to_string(lines);
@@ -248,7 +227,8 @@ TEST_F(PlotCli, BodeTerminalPlotFitsAndIsLabelled) {
     const std::string ticks = plot[static_cast<std::size_t>(at("frequency (Hz)") - 1)];
     for (const char* tick : {"1k", "1M"}) EXPECT_NE(ticks.find(tick), std::string::npos) << ticks;
     if (columns >= 60) {
-      for (const char* tick : {"10k", "100k"}) EXPECT_NE(ticks.find(tick), std::string::npos) << ticks;
+      for (const char* tick : {"10k", "100k"})
+        EXPECT_NE(ticks.find(tick), std::string::npos) << ticks;
       // The legend in the magnitude panel's border: pen characters of
       // gnuplot's text terminal, then the record names.
       EXPECT_NE(r.out.find("* out  # R1.i"), std::string::npos) << r.out;
@@ -260,11 +240,13 @@ TEST_F(PlotCli, PoleMapTerminalPlotFitsAndShowsEveryPole) {
   const std::string file = write("sw.rlc", kSwitchedRlc);
   const std::string title = "Series RLC with a switched damping resistor";
   for (auto [columns, lines] : {std::pair{80, 24}, std::pair{100, 40}}) {
-    const ProcessResult r = run_ringdown({"modes", file, "--plot", "term"},
-                                         {{"COLUMNS", std::to_string(columns)}, {"LINES", std::to_string(lines)}});
+    const ProcessResult r =
+        run_ringdown({"modes", file, "--plot", "term"},
+                     {{"COLUMNS", std::to_string(columns)}, {"LINES", std::to_string(lines)}});
     ASSERT_EQ(r.exit_code, kOk) << r.err;
     const auto plot = plot_lines(r.out, title);
-    expect_fits(plot, columns, lines - 1, "modes " + std::to_string(columns) + "x" + std::to_string(lines));
+    expect_fits(plot, columns, lines - 1,
+                "modes " + std::to_string(columns) + "x" + std::to_string(lines));
     // Inside the plane's borders: configuration 2's marker '2' once per
     // pole, both of the conjugate pair (the ray labels 0.1 ... 0.7 hold no 2;
     // the header row "Im(s)/2pi" is a border row, not inside).
@@ -295,9 +277,9 @@ TEST_F(PlotCli, PoleMapTerminalPlotFitsAndShowsEveryPole) {
 TEST_F(PlotCli, TransientTerminalPanelsShareTheHeight) {
   // Three panels (V, A, W) in 30 lines: each gets a fair share of the rows
   // inside its borders, the time axis only under the last.
-  const ProcessResult r = run_ringdown({"run", write("rc.rlc", kLowPass), "--record", "out,R1.i,R1.p", "--plot",
-                                        "term", "--quiet"},
-                                       {{"COLUMNS", "100"}, {"LINES", "30"}});
+  const ProcessResult r = run_ringdown(
+      {"run", write("rc.rlc", kLowPass), "--record", "out,R1.i,R1.p", "--plot", "term", "--quiet"},
+      {{"COLUMNS", "100"}, {"LINES", "30"}});
   ASSERT_EQ(r.exit_code, kOk) << r.err;
   const auto plot = lines_of(r.out);
   expect_fits(plot, 100, 29, "run");
@@ -306,7 +288,8 @@ TEST_F(PlotCli, TransientTerminalPanelsShareTheHeight) {
   // 29 lines - title - tick labels - time label = 26 rows, 8 or 9 per panel
   // with its two borders: at least 6 inside.
   for (int rows : panels) EXPECT_GE(rows, 6) << r.out;
-  for (const char* text : {"voltage (V): * out", "current (mA): * R1.i", "power (mW): * R1.p", "time (us)"})
+  for (const char* text :
+       {"voltage (V): * out", "current (mA): * R1.i", "power (mW): * R1.p", "time (us)"})
     EXPECT_NE(r.out.find(text), std::string::npos) << text << "\n" << r.out;
   std::size_t time_labels = 0;
   for (const auto& line : plot) time_labels += line.find("time (us)") != std::string::npos;
@@ -322,11 +305,12 @@ TEST_F(PlotCli, BadTargetsExitTwoWithAMessage) {
     std::vector<std::string> args;
     const char* message;
   };
-  for (const Case& c : {Case{{"freq", rc, "--plot", "bode.jpg"}, "neither 'term' nor a file name"},
-                        Case{{"modes", sw, "--plot", "poles"}, "neither 'term' nor a file name"},
-                        Case{{"freq", rc, "--plot", "term", "--csv", "-"}, "would both write to stdout"},
-                        Case{{"freq", rc, "--plot", path("missing/dir/bode.png")}, "cannot create"},
-                        Case{{"modes", sw, "--plot", path("missing/dir/poles.svg")}, "cannot create"}}) {
+  for (const Case& c :
+       {Case{{"freq", rc, "--plot", "bode.jpg"}, "neither 'term' nor a file name"},
+        Case{{"modes", sw, "--plot", "poles"}, "neither 'term' nor a file name"},
+        Case{{"freq", rc, "--plot", "term", "--csv", "-"}, "would both write to stdout"},
+        Case{{"freq", rc, "--plot", path("missing/dir/bode.png")}, "cannot create"},
+        Case{{"modes", sw, "--plot", path("missing/dir/poles.svg")}, "cannot create"}}) {
     const ProcessResult r = run_ringdown(c.args);
     EXPECT_EQ(r.exit_code, kBadInput) << c.args[0] << " " << c.args[3];
     EXPECT_NE(r.err.find(c.message), std::string::npos) << r.err;
@@ -341,7 +325,8 @@ TEST_F(PlotCli, MissingGnuplotExitsTwoBeforeAnyWork) {
   fs::create_directories(empty_path);
   for (const std::vector<std::string>& args :
        {std::vector<std::string>{"freq", write("rc.rlc", kLowPass), "--plot", path("b.png")},
-        std::vector<std::string>{"modes", write("sw.rlc", kSwitchedRlc), "--plot", path("p.png")}}) {
+        std::vector<std::string>{"modes", write("sw.rlc", kSwitchedRlc), "--plot",
+                                 path("p.png")}}) {
     const ProcessResult r = run_ringdown(args, {{"PATH", empty_path}});
     EXPECT_EQ(r.exit_code, kBadInput) << r.err;
     EXPECT_NE(r.err.find("needs gnuplot"), std::string::npos) << r.err;
@@ -358,19 +343,22 @@ TEST_F(PlotCli, FailingGnuplotLeavesNoFile) {
       "out=$(sed -n \"s/^set output '\\(.*\\)'$/\\1/p\" | head -n 1)\n"
       "printf '\\211PNG half' > \"$out\"\nexit 1\n");
   write("old.png", "the previous plot");
-  for (const auto& args : {std::vector<std::string>{"freq", rc, "--plot", path("old.png"), "--quiet"},
-                           std::vector<std::string>{"modes", sw, "--plot", path("old.png")},
-                           std::vector<std::string>{"run", rc, "--plot", path("old.png"), "--quiet"}}) {
+  for (const auto& args :
+       {std::vector<std::string>{"freq", rc, "--plot", path("old.png"), "--quiet"},
+        std::vector<std::string>{"modes", sw, "--plot", path("old.png")},
+        std::vector<std::string>{"run", rc, "--plot", path("old.png"), "--quiet"}}) {
     const ProcessResult r = run_ringdown(args, {{"PATH", half}});
     EXPECT_EQ(r.exit_code, kBadInput) << args[0] << "\n" << r.err;
     EXPECT_NE(r.err.find("gnuplot did not produce a valid file"), std::string::npos) << r.err;
-    EXPECT_EQ(read_all(path("old.png")), "the previous plot") << args[0] << ": the target is untouched";
+    EXPECT_EQ(read_all(path("old.png")), "the previous plot")
+        << args[0] << ": the target is untouched";
     EXPECT_TRUE(hidden_files().empty()) << args[0];
   }
   fs::remove(dir_ / "fakebin" / "gnuplot");
   const std::string early = fake_gnuplot("exit 1\n");
-  for (const auto& args : {std::vector<std::string>{"freq", rc, "--plot", path("new.svg"), "--quiet"},
-                           std::vector<std::string>{"modes", sw, "--plot", path("new.pdf")}}) {
+  for (const auto& args :
+       {std::vector<std::string>{"freq", rc, "--plot", path("new.svg"), "--quiet"},
+        std::vector<std::string>{"modes", sw, "--plot", path("new.pdf")}}) {
     const ProcessResult r = run_ringdown(args, {{"PATH", early}});
     EXPECT_EQ(r.exit_code, kBadInput) << args[0] << "\n" << r.err;
     EXPECT_NE(r.err.find("gnuplot"), std::string::npos) << r.err;
@@ -414,8 +402,10 @@ TEST(PlotHelpers, LogarithmicRadiusOnlyForSpreadPoles) {
   using ringdown::cli::PoleSet;
   using C = std::complex<double>;
   // kLinearSpread = 100: a ratio of natural frequencies up to 100 stays linear.
-  EXPECT_FALSE(ringdown::cli::logarithmic_radius({PoleSet{"a", {C(-1e3, 3e3), C(-1e3, -3e3)}}, PoleSet{"b", {C(-5e4, 0)}}}));
-  EXPECT_TRUE(ringdown::cli::logarithmic_radius({PoleSet{"a", {C(-1, 0)}}, PoleSet{"b", {C(-1e3, 0)}}}));
+  EXPECT_FALSE(ringdown::cli::logarithmic_radius(
+      {PoleSet{"a", {C(-1e3, 3e3), C(-1e3, -3e3)}}, PoleSet{"b", {C(-5e4, 0)}}}));
+  EXPECT_TRUE(
+      ringdown::cli::logarithmic_radius({PoleSet{"a", {C(-1, 0)}}, PoleSet{"b", {C(-1e3, 0)}}}));
   // A zero pole has no magnitude to compare.
   EXPECT_FALSE(ringdown::cli::logarithmic_radius({PoleSet{"a", {C(0, 0), C(-1e3, 0)}}}));
 }
