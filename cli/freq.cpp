@@ -1,7 +1,7 @@
 // `ringdown freq`: see freq.hpp. Order of work, so that a failure leaves no
 // output file behind and says why: flags -> load -> input source and sweep
 // (flags over the file) -> analysis -> CSV to a temporary, committed only
-// when complete -> summary -> warnings.
+// when complete -> summary -> Bode plot -> warnings.
 #include "cli/freq.hpp"
 
 #include <CLI/CLI.hpp>
@@ -15,6 +15,7 @@
 #include <string>
 
 #include "cli/atomic_file.hpp"
+#include "cli/bode_plot.hpp"
 #include "cli/console.hpp"
 #include "cli/csv_writer.hpp"
 #include "cli/exit_codes.hpp"
@@ -106,7 +107,7 @@ std::string hz(double f) { return format_si(f, "Hz", kSummaryDigits); }
 
 void print_summary(std::FILE* out, const Circuit& c, const Part& input, double from, double to,
                    int per_decade, const solver::FrequencyResult& r, std::optional<double> phase_at,
-                   const std::string& csv, int warnings) {
+                   const std::string& csv, const std::string& plot, int warnings) {
   const std::string title = c.title.empty() ? c.file : c.title;
   std::fprintf(out, "%s\n", title.c_str());
   if (!c.title.empty()) std::fprintf(out, "  file         %s\n", c.file.c_str());
@@ -115,6 +116,7 @@ void print_summary(std::FILE* out, const Circuit& c, const Part& input, double f
   std::fprintf(out, "  frequency    from=%s to=%s per_decade=%d (%zu points)\n", hz(from).c_str(),
                hz(to).c_str(), per_decade, r.freq.size());
   if (!csv.empty()) std::fprintf(out, "  csv          %s\n", csv == "-" ? "stdout" : csv.c_str());
+  if (!plot.empty()) std::fprintf(out, "  plot         %s\n", plot.c_str());
   for (const solver::SignalResponse& s : r.signals) {
     const solver::FrequencyFigures& f = s.figures;
     std::fprintf(out, "\n%s\n", s.name.c_str());
@@ -182,6 +184,9 @@ CLI::App* setup_freq(CLI::App& app, FreqOptions& o) {
       ->allow_extra_args(false);
   cmd->add_option("--csv", o.csv, "write freq,<signal>.db,<signal>.deg,... ('-': stdout)")
       ->type_name("PATH");
+  cmd->add_option("--plot", o.plot,
+                  "Bode plot of the recorded signals: term, or PATH.png|.svg|.pdf")
+      ->type_name("TARGET");
   cmd->add_option("--digits", o.digits, "significant digits in the CSV (default 12)")
       ->type_name("N")
       ->check(CLI::Range(1, kMaxDigits));
@@ -196,6 +201,9 @@ int run_freq(const FreqOptions& o) {
     print_error("--digits takes a whole number from 1 to 17, got " + std::to_string(o.digits));
     return kExitBadInput;
   }
+  std::optional<PlotTarget> plot_target;
+  if (!o.plot.empty() && !(plot_target = plot_target_or_report(o.plot, o.csv == "-")))
+    return kExitBadInput;
   std::optional<double> flag_from, flag_to, phase_at;
   if (!o.from.empty() && !(flag_from = frequency_flag("--from", o.from))) return kExitBadInput;
   if (!o.to.empty() && !(flag_to = frequency_flag("--to", o.to))) return kExitBadInput;
@@ -336,10 +344,25 @@ int run_freq(const FreqOptions& o) {
   int warning_count = 0;
   for (const Diagnostic& d : warnings) warning_count += d.severity == Severity::Warning;
   if (!o.quiet)
-    print_summary(csv_to_stdout ? stderr : stdout, c, c.parts[static_cast<std::size_t>(input)], from, to,
-                  per_decade, r, phase_at, o.csv, warning_count);
+    print_summary(csv_to_stdout ? stderr : stdout, c, c.parts[static_cast<std::size_t>(input)],
+                  from, to, per_decade, r, phase_at, o.csv, o.plot, warning_count);
+  int status = kExitOk;
+  if (plot_target) {
+    if (!o.quiet && plot_target->text()) std::fputc('\n', stdout);
+    BodeRequest request;
+    request.target = *plot_target;
+    request.title = c.title.empty() ? c.file : c.title;
+    request.input = c.parts[static_cast<std::size_t>(input)].name;
+    request.from = from;
+    request.to = to;
+    std::string error;
+    if (!draw_bode(request, r, error)) {
+      print_error(error);
+      status = kExitBadInput;
+    }
+  }
   print_diagnostics(warnings, false);
-  return kExitOk;
+  return status;
 }
 
 }  // namespace ringdown::cli

@@ -2,11 +2,12 @@
 // NETLIST.md section 7 `frequency`) from its input source to each recorded
 // signal. Prints a summary (title, input, points, and per signal the figures
 // of docs/frequency.md) and on request writes the CSV
-// `freq,<signal>.db,<signal>.deg,...` (--csv PATH, '-' for stdout).
+// `freq,<signal>.db,<signal>.deg,...` (--csv PATH, '-' for stdout) and the
+// Bode plot (--plot term|PATH.png|.svg|.pdf, bode_plot.hpp).
 //
 // Flags override the file's statement: --input SRC replaces input=, --from,
-// --to and --per-decade replace the sweep. Not here: plots of the response
-// (a later issue), sweeps and trials of the frequency analysis.
+// --to and --per-decade replace the sweep. Not here: sweeps and trials of
+// the frequency analysis.
 #pragma once
 
 #include <string>
@@ -27,6 +28,7 @@ struct FreqOptions {
   std::vector<std::string> set;     // --set NAME=VALUE
   std::vector<std::string> record;  // --record S,S,...
   std::string csv;                  // --csv PATH, "-" for stdout
+  std::string plot;                 // --plot term|PATH.png|PATH.svg|PATH.pdf
   int digits = 12;                  // --digits N
   bool quiet = false;               // --quiet: no summary
   bool strict = false;              // --strict: warnings are errors (exit 2)

@@ -9,11 +9,13 @@
 #include <cstdio>
 #include <cstring>
 #include <fstream>
+#include <optional>
 #include <string>
 #include <vector>
 
 #include "cli/console.hpp"
 #include "cli/exit_codes.hpp"
+#include "cli/pole_plot.hpp"
 #include "parser/load.hpp"
 #include "parser/units.hpp"
 
@@ -91,6 +93,29 @@ std::string configuration_label(const solver::ConfigurationModes& cm) {
   for (std::size_t k = 0; k < cm.closed.size(); ++k)
     out += std::string(k ? ", " : ": ") + cm.switch_names[k] + (cm.closed[k] ? " closed" : " open");
   return out;
+}
+
+// The pole map's sets: one per configuration, both poles of a pair.
+std::vector<PoleSet> pole_sets(const solver::ModesResult& result) {
+  std::vector<PoleSet> sets;
+  const std::size_t count = result.configurations.size();
+  for (std::size_t c = 0; c < count; ++c) {
+    const solver::ConfigurationModes& cm = result.configurations[c];
+    PoleSet set;
+    if (count == 1 && cm.closed.empty()) {
+      set.label = "poles";
+    } else {
+      for (std::size_t k = 0; k < cm.closed.size(); ++k)
+        set.label += (k ? ", " : "") + cm.switch_names[k] + (cm.closed[k] ? " closed" : " open");
+      set.label += " (from " + format_si(cm.from, "s", kDigits) + ")";
+    }
+    for (const solver::Mode& m : cm.modes) {
+      set.poles.push_back(m.pole);
+      if (m.kind == solver::ModeKind::Oscillating) set.poles.push_back(std::conj(m.pole));
+    }
+    sets.push_back(std::move(set));
+  }
+  return sets;
 }
 
 std::string trim(const std::string& s) {
@@ -176,11 +201,16 @@ CLI::App* setup_modes(CLI::App& app, ModesOptions& options) {
   cmd->add_option("--set", options.set, "override a parameter (repeatable)")
       ->type_name("NAME=VALUE")
       ->allow_extra_args(false);
+  cmd->add_option("--plot", options.plot, "pole map: term, or PATH.png|.svg|.pdf")
+      ->type_name("TARGET");
   cmd->add_flag("--strict", options.strict, "treat warnings as errors (exit 2)");
   return cmd;
 }
 
 int run_modes(const ModesOptions& options) {
+  std::optional<PlotTarget> plot_target;
+  if (!options.plot.empty() && !(plot_target = plot_target_or_report(options.plot, false)))
+    return kExitBadInput;
   if (!readable_or_report(options.file)) return kExitBadInput;
   LoadOptions load_options;
   for (const std::string& entry : options.set) {
@@ -209,6 +239,18 @@ int run_modes(const ModesOptions& options) {
   const std::string text = format_modes(*loaded.circuit, result);
   std::fwrite(text.data(), 1, text.size(), stdout);
   std::fflush(stdout);
+  if (plot_target) {
+    if (plot_target->text()) std::fputc('\n', stdout);
+    PoleMapRequest request;
+    request.target = *plot_target;
+    request.title = loaded.circuit->title.empty() ? loaded.circuit->file : loaded.circuit->title;
+    request.sets = pole_sets(result);
+    std::string error;
+    if (!draw_pole_map(request, error)) {
+      print_error(error);
+      return kExitBadInput;
+    }
+  }
   return kExitOk;
 }
 

@@ -6,8 +6,10 @@
 // solver/modes.hpp; this file only loads, prints and maps outcomes onto the
 // exit codes (0 ok, 2 bad input, 3 numerical failure).
 //
-// Not here: sweeps and trials (modes are for the nominal values, after
-// --set), plots of the pole map.
+// On request (--plot term|PATH.png|.svg|.pdf) the pole map of
+// pole_plot.hpp, after the table.
+//
+// Not here: sweeps and trials (modes are for the nominal values, after --set).
 #pragma once
 
 #include <string>
@@ -24,6 +26,7 @@ namespace ringdown::cli {
 struct ModesOptions {
   std::string file;              // the circuit file
   std::vector<std::string> set;  // --set NAME=VALUE, in order
+  std::string plot;              // --plot term|PATH.png|PATH.svg|PATH.pdf
   bool strict = false;           // --strict: warnings are errors (exit 2)
 };
 

@@ -3,9 +3,11 @@
 // FILE.png|.svg|.pdf` writes a file (atomically, see atomic_file.hpp).
 //
 // Layout: one panel per unit (voltages, currents, powers, then any other
-// unit), stacked with gnuplot's multiplot; the circuit's title on top; the
-// legend from the record names; both axes scaled to an SI prefix and labelled
-// with it ("time (us)", "current (mA)") so tick labels stay short.
+// unit), stacked over one time axis (gnuplot.hpp, stack_panels); the
+// circuit's title on top; the legend from the record names; both axes scaled
+// to an SI prefix and labelled with it ("time (us)", "current (mA)") so tick
+// labels stay short. In a text plot each panel's top border carries its
+// label and legend ("voltage (V): * drain").
 //
 // PlotData keeps what a plot needs while the run streams: at most
 // kPlotBuckets buckets per signal, each reduced to its minimum and maximum
@@ -19,18 +21,10 @@
 #include <utility>
 #include <vector>
 
+#include "cli/gnuplot.hpp"  // PlotTarget, parse_plot_target, gnuplot_available
 #include "parser/units.hpp"
 
 namespace ringdown::cli {
-
-struct PlotTarget {
-  enum class Kind { Terminal, Png, Svg, Pdf };
-  Kind kind = Kind::Terminal;
-  std::string path;  // empty for Terminal
-};
-
-// "term", or a path ending in .png/.svg/.pdf (any case). nullopt + error else.
-std::optional<PlotTarget> parse_plot_target(const std::string& text, std::string& error);
 
 struct PlotSignal {
   std::string name;  // as written in the record list
@@ -70,9 +64,6 @@ struct PlotRequest {
   std::string title;   // the circuit's title (or file name)
   double t_end = 0;    // end of the time axis, s
 };
-
-// True when a gnuplot executable is on PATH.
-bool gnuplot_available();
 
 // Draws the plot. For Terminal the text goes to stdout. Returns false with
 // `error` set when gnuplot fails or the file it wrote is not a valid

@@ -19,6 +19,7 @@
 #include <vector>
 
 #include "process.hpp"
+#include "scratch_dir.hpp"
 
 namespace fs = std::filesystem;
 using ringdown::test::ProcessResult;
@@ -79,38 +80,7 @@ int significant_digits(const std::string& number) {
   return first == std::string::npos ? 1 : static_cast<int>(digits.size() - first);
 }
 
-std::string read_all(const fs::path& path) {
-  std::ifstream in(path, std::ios::binary);
-  std::ostringstream s;
-  s << in.rdbuf();
-  return s.str();
-}
-
-class Cli : public ::testing::Test {
- protected:
-  void SetUp() override {
-    char pattern[] = "/tmp/ringdown-cli-test-XXXXXX";
-    ASSERT_NE(::mkdtemp(pattern), nullptr);
-    dir_ = pattern;
-  }
-  void TearDown() override { fs::remove_all(dir_); }
-
-  std::string write(const std::string& name, const std::string& text) {
-    const fs::path path = dir_ / name;
-    std::ofstream(path, std::ios::binary) << text;
-    return path.string();
-  }
-  std::string path(const std::string& name) const { return (dir_ / name).string(); }
-  // Files in the directory whose names start with '.' (temporaries).
-  std::vector<std::string> hidden_files() const {
-    std::vector<std::string> out;
-    for (const auto& e : fs::directory_iterator(dir_))
-      if (e.path().filename().string().front() == '.') out.push_back(e.path().filename().string());
-    return out;
-  }
-
-  fs::path dir_;
-};
+using Cli = ringdown::test::ScratchDirTest;
 
 // --- Exit codes and diagnostics ------------------------------------------------
 

@@ -14,6 +14,7 @@
 #include <vector>
 
 #include "process.hpp"
+#include "scratch_dir.hpp"
 
 namespace fs = std::filesystem;
 using ringdown::test::ProcessResult;
@@ -36,21 +37,7 @@ transient until=1m
 modes
 )";
 
-class ModesCli : public ::testing::Test {
- protected:
-  void SetUp() override {
-    char pattern[] = "/tmp/ringdown-modes-test-XXXXXX";
-    ASSERT_NE(::mkdtemp(pattern), nullptr);
-    dir_ = pattern;
-  }
-  void TearDown() override { fs::remove_all(dir_); }
-  std::string write(const std::string& name, const std::string& text) {
-    const fs::path path = dir_ / name;
-    std::ofstream(path, std::ios::binary) << text;
-    return path.string();
-  }
-  fs::path dir_;
-};
+using ModesCli = ringdown::test::ScratchDirTest;
 
 // Value of an SI-prefixed number as printed ("4.97 kHz", "200 us").
 double printed_value(const std::string& number, const std::string& prefix) {
