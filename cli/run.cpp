@@ -134,7 +134,7 @@ Diagnostics not_run_notes(const Circuit& c) {
     d.message = message;
     notes.push_back(d);
   };
-  if (c.frequency) note(c.frequency->where, "the frequency analysis is not run by this version");
+  if (c.frequency) note(c.frequency->where, "the frequency analysis is run by `ringdown freq`, not by run");
   if (!c.sweeps.empty())
     note(c.sweeps.front().where, "sweeps are not run by this version; the file's values are used");
   if (c.trials) note(c.trials->where, "trials are not run by this version");

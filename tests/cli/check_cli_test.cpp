@@ -18,6 +18,7 @@
 #include <string>
 
 #include "process.hpp"
+#include "scratch_dir.hpp"
 
 namespace fs = std::filesystem;
 using ringdown::test::ProcessResult;
@@ -48,26 +49,9 @@ std::string rlc(const std::string& extra_expects, const std::string& cap_rating 
          extra_expects;
 }
 
-class CheckCli : public ::testing::Test {
+class CheckCli : public ringdown::test::ScratchDirTest {
  protected:
-  void SetUp() override {
-    char pattern[] = "/tmp/ringdown-check-test-XXXXXX";
-    ASSERT_NE(::mkdtemp(pattern), nullptr);
-    dir_ = pattern;
-  }
-  void TearDown() override { fs::remove_all(dir_); }
-  std::string write(const std::string& name, const std::string& text) {
-    const fs::path path = dir_ / name;
-    std::ofstream(path, std::ios::binary) << text;
-    return path.string();
-  }
-  static std::string read(const std::string& path) {
-    std::ifstream in(path, std::ios::binary);
-    std::stringstream s;
-    s << in.rdbuf();
-    return s.str();
-  }
-  fs::path dir_;
+  static std::string read(const std::string& path) { return read_all(path); }
 };
 
 TEST_F(CheckCli, RunPrintsFiguresAndExpects) {
