@@ -6,6 +6,7 @@
 
 #include <gtest/gtest.h>
 
+#include <algorithm>
 #include <cmath>
 #include <complex>
 #include <cstdio>
@@ -186,6 +187,68 @@ TEST_P(FrequencyButterworth, CornerSlopeAndPhase) {
 }
 
 INSTANTIATE_TEST_SUITE_P(Orders, FrequencyButterworth, ::testing::Values(3, 5));
+
+// --- Chebyshev ladder ----------------------------------------------------------------
+
+// Doubly terminated Chebyshev low-pass, 0.5 dB ripple, odd order (equal terminations), shunt C
+// first, the prototype values from the closed-form recursion (Matthaei, Young & Jones,
+// Microwave Filters, Impedance-Matching Networks and Coupling Structures, 1964, sec. 4.05;
+// from memory): beta = ln(coth(Lr / 17.37)), gamma = sinh(beta / 2n),
+// a_k = sin((2k-1) pi / 2n), b_k = gamma^2 + sin^2(k pi / n), g_1 = 2 a_1 / gamma,
+// g_k = 4 a_(k-1) a_k / (b_(k-1) g_(k-1)). For n = 3 that gives 1.5963, 1.0967, 1.5963, the
+// handbook table's values (from memory). Scaled to the ripple band edge fc = 100 kHz.
+std::vector<double> chebyshev_g(int n, double ripple_db) {
+  const double beta = std::log(1 / std::tanh(ripple_db / 17.37));
+  const double gamma = std::sinh(beta / (2 * n));
+  std::vector<double> a(n + 1), b(n + 1), g(n + 1);
+  for (int k = 1; k <= n; ++k) {
+    a[k] = std::sin((2 * k - 1) * kPi / (2 * n));
+    b[k] = gamma * gamma + std::pow(std::sin(k * kPi / n), 2);
+  }
+  g[1] = 2 * a[1] / gamma;
+  for (int k = 2; k <= n; ++k) g[k] = 4 * a[k - 1] * a[k] / (b[k - 1] * g[k - 1]);
+  return g;
+}
+
+TEST(FrequencyChebyshev, PassbandRippleIsHalfADecibel) {
+  for (int n : {3, 5}) {
+    const std::vector<double> g = chebyshev_g(n, 0.5);
+    if (n == 3) {
+      EXPECT_NEAR(g[1], 1.5963, 1e-4);
+      EXPECT_NEAR(g[2], 1.0967, 1e-4);
+    }
+    std::string t = "fc = 100kHz\nRterm = 50Ohm\nvoltage Vs src gnd 1V\nresistor Rs src n0 Rterm\n";
+    int node = 0;
+    const int inductors = n / 2;
+    auto name = [&](int k) { return k == inductors ? std::string("out") : "n" + std::to_string(k); };
+    char v[64];
+    for (int k = 1; k <= n; ++k) {
+      std::snprintf(v, sizeof v, "%.17f", g[static_cast<std::size_t>(k)]);
+      if (k % 2 == 1) {
+        t += "capacitor C" + std::to_string(k) + " " + name(node) + " gnd (" + v + "/(2*pi*fc*Rterm))\n";
+      } else {
+        t += "inductor L" + std::to_string(k) + " " + name(node) + " " + name(node + 1) + " (" + v +
+             "*Rterm/(2*pi*fc))\n";
+        ++node;
+      }
+    }
+    t += "resistor RL out gnd Rterm\nfrequency from=1kHz to=100kHz per_decade=2000 input=Vs\nrecord out\n";
+    const Circuit c = load(t);
+    ASSERT_TRUE(c.frequency.has_value());
+    Diagnostics d;
+    const FrequencyResult r = run_frequency(c, c.records, options_of(c), d);
+    ASSERT_EQ(r.status, Status::Ok);
+    const auto& db = r.signals[0].db;
+    const double hi = *std::max_element(db.begin(), db.end());
+    const double lo = *std::min_element(db.begin(), db.end());
+    // Odd order, equal terminations: the passband touches the divider's -6.0206 dB (full power
+    // transfer) and dips by the ripple, 0.5 dB, reached again at the band edge (Chebyshev
+    // equiripple response, same source).
+    EXPECT_NEAR(hi, 20 * std::log10(0.5), 1e-4) << "n = " << n;
+    EXPECT_NEAR(hi - lo, 0.5, 0.01) << "n = " << n;
+    EXPECT_NEAR(db.back(), 20 * std::log10(0.5) - 0.5, 0.01) << "n = " << n;
+  }
+}
 
 // --- Grid, unwrapping, rejections -----------------------------------------------
 
