@@ -31,6 +31,7 @@
 #include "cli/progress.hpp"
 #include "cli/quantity.hpp"
 #include "cli/report.hpp"
+#include "cli/sweep.hpp"
 #include "parser/units.hpp"
 #include "solver/transient.hpp"
 
@@ -135,9 +136,6 @@ Diagnostics not_run_notes(const Circuit& c) {
     notes.push_back(d);
   };
   if (c.frequency) note(c.frequency->where, "the frequency analysis is run by `ringdown freq`, not by run");
-  if (!c.sweeps.empty())
-    note(c.sweeps.front().where, "sweeps are not run by this version; the file's values are used");
-  if (c.trials) note(c.trials->where, "trials are not run by this version");
   return notes;
 }
 
@@ -227,6 +225,9 @@ void add_shared_flags(CLI::App* cmd, RunOptions& o) {
   cmd->add_flag("--quiet", o.quiet, "print no summary and no progress");
   cmd->add_flag("--no-progress", o.no_progress, "no progress bar");
   cmd->add_flag("--strict", o.strict, "treat warnings as errors (exit 2)");
+  cmd->add_option("--jobs", o.jobs, "threads for sweeps and trials (default: every core)")
+      ->type_name("N")
+      ->check(CLI::PositiveNumber);
 }
 
 namespace {
@@ -383,6 +384,16 @@ FileOutcome execute(const RunOptions& options, const Loader& load, Mode mode) {
   if (!plan) return refuse(kExitBadInput, {}, "no transient to run");
   for (const Diagnostic& n : not_run_notes(circuit)) warnings.push_back(n);
   const std::size_t rows = expected_rows(plan->until, plan->every);
+  if (needs_sweep_runner(circuit, load_options)) {  // sweeps and trials: cli/sweep.hpp
+    SweepContext context{&options, &load, load_options, &circuit, plan->until, plan->every,
+                         plan->initial_dc, safety, formula_tolerance, plot_target, !run_mode, warnings};
+    SweepOutcome swept = run_sweep(context);
+    out.exit_code = swept.exit_code;
+    out.failed_expects = swept.failed_expects;
+    out.json = std::move(swept.json);
+    out.junit = std::move(swept.junit);
+    return out;
+  }
 
   // --- Outputs (temporaries until the run succeeds) ---------------------------
   const bool csv_to_stdout = options.csv == "-";
@@ -624,6 +635,10 @@ CLI::App* setup_run(CLI::App& app, RunOptions& o) {
       });
   cmd->add_option("--plot", o.plot, "plot the recorded signals: term, or PATH.png|.svg|.pdf")
       ->type_name("TARGET");
+  cmd->add_option("--csv-signals", o.csv_signals, "sweeps and trials: write the waveforms, a column per point and signal")
+      ->type_name("PATH");
+  cmd->add_option("--best", o.best, "sweeps: the point that meets every expect with the best report, 'min NAME' or 'max NAME'")
+      ->type_name("GOAL");
   return cmd;
 }
 

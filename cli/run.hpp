@@ -3,8 +3,8 @@
 // screen; `run` prints the summary on stdout and on request writes the
 // recorded signals as CSV (--csv), a plot (--plot) and the summary as JSON
 // (--json); `check` is quiet unless something fails, exits 1 when an expect
-// fails and writes JUnit XML (--junit). CLI.md names the flags. Sweeps and
-// trials are announced as not run by this version.
+// fails and writes JUnit XML (--junit). CLI.md names the flags. A file with
+// sweeps or trials goes to the runner of cli/sweep.hpp.
 #pragma once
 
 #include <functional>
@@ -39,6 +39,9 @@ struct RunOptions {
   std::string tol;                  // --tol: formula() fit tolerance (relative), as typed
   std::string elv;                  // --elv AC_RMS,DC: the safety band, as typed
   bool accept_mains_risk = false;   // --accept-mains-risk
+  int jobs = 0;                     // --jobs N: threads for sweeps and trials (0: every core)
+  std::string csv_signals;          // --csv-signals PATH: waveforms of a sweep or trials
+  std::string best;                 // --best 'min NAME' | 'max NAME'
 };
 
 CLI::App* setup_run(CLI::App& app, RunOptions& options);

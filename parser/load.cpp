@@ -510,7 +510,20 @@ class Loader {
   const Stmt* trials_stmt_ = nullptr;
   const Stmt* title_stmt_ = nullptr;
   std::vector<std::string> override_texts_;  // keeps --set buffers alive
+  std::vector<const Stmt*> command_line_sweeps_;  // --set NAME=LIST, in order
+  void elaborate_command_line_sweeps();
 };
+
+// A --set value that is a sweep list: `(a, b, ...)` with two or more values, or a call of
+// linear, geometric, e6, e12, e24, e96.
+bool is_sweep_list(const ast::Operand& op) {
+  if (const ast::Group* g = as_group(op)) return g->items.size() >= 2;
+  if (const ast::Call* c = as_call(op)) {
+    const std::string& f = c->function;
+    return f == "linear" || f == "geometric" || f == "e6" || f == "e12" || f == "e24" || f == "e96";
+  }
+  return false;
+}
 
 // --- Pass 1 -----------------------------------------------------------------------
 
@@ -3205,6 +3218,19 @@ void Loader::apply_overrides() {
     line.name.text = name;
     line.name.first = f.code.data();
     line.name.last = f.code.data() + name.size();
+    if (is_sweep_list(op)) {
+      // --set NAME=LIST: a sweep of NAME from the command line (elaborated with the
+      // file's sweeps, replacing a sweep of the same parameter in its place).
+      ast::SweepLine sweep;
+      sweep.name = line.name;
+      sweep.list = std::move(op);
+      holder.first = f.code.data();
+      holder.ast = std::move(sweep);
+      const auto& stored = boost::get<ast::SweepLine>(holder.ast.get());
+      if (p->sweep) p->sweep = &stored;  // a parameter only a sweep defines: its first value
+      command_line_sweeps_.push_back(&holder);
+      continue;
+    }
     line.value = std::move(op);
     holder.ast = std::move(line);
     const auto& stored = boost::get<ast::ParameterLine>(holder.ast.get());
@@ -3213,6 +3239,23 @@ void Loader::apply_overrides() {
     p->eval_scope = &global_;
     p->sweep = nullptr;
     p->overridden = true;
+  }
+}
+
+void Loader::elaborate_command_line_sweeps() {
+  for (const Stmt* stmt : command_line_sweeps_) {
+    const auto& line = boost::get<ast::SweepLine>(stmt->ast.get());
+    auto& sweeps = circuit_.sweeps;
+    const auto same = std::find_if(sweeps.begin(), sweeps.end(),
+                                   [&](const SweepRequest& r) { return r.parameter == line.name.text; });
+    std::optional<std::size_t> place;
+    if (same != sweeps.end()) {
+      place = static_cast<std::size_t>(same - sweeps.begin());
+      sweeps.erase(same);
+    }
+    const std::size_t before = sweeps.size();
+    elaborate_sweep(*stmt, line);
+    if (place && sweeps.size() > before) std::rotate(sweeps.begin() + static_cast<std::ptrdiff_t>(*place), sweeps.end() - 1, sweeps.end());
   }
 }
 
@@ -3302,6 +3345,7 @@ LoadResult Loader::load(std::string text, const std::string& file_name, bool fro
   Context ctx;
   ctx.scope = &global_;
   for (const Stmt* s : top_) elaborate_statement(*s, ctx, true);
+  elaborate_command_line_sweeps();
   // Block bodies are checked even when no `use` instantiates them? Only
   // syntax: their names depend on the instance.
 

@@ -14,7 +14,10 @@ namespace ringdown {
 
 struct LoadOptions {
   // --set NAME=VALUE overrides, in command-line order. VALUE is an expression
-  // in the language (may carry a unit, checked like one in the file).
+  // in the language (may carry a unit, checked like one in the file). A VALUE
+  // that is a sweep list ("(a, b, ...)", linear/geometric/e6/e12/e24/e96(...))
+  // becomes a sweep of NAME in Circuit::sweeps instead (replacing the file's
+  // sweep of NAME in its place, else after the file's sweeps).
   std::vector<std::pair<std::string, std::string>> overrides;
   // --record S,S,...: replaces the file's record list when non-empty.
   std::vector<std::string> records;
