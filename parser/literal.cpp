@@ -124,7 +124,23 @@ bool is_iec_code(std::string_view text) {
   return decode_iec("", text).has_value();
 }
 
+namespace {
+std::optional<Literal> decode_number_unchecked(std::string_view text, LiteralError& error);
+}
+
 std::optional<Literal> decode_number(std::string_view text, LiteralError& error) {
+  std::optional<Literal> literal = decode_number_unchecked(text, error);
+  // 1e400 overflows a double to infinity (IEEE 754): an error here, not an infinite
+  // period or resistance found much later.
+  if (literal && !std::isfinite(literal->value)) {
+    error.message = "'" + std::string(text) + "' is too large for a number (the largest is about 1.8e308)";
+    return std::nullopt;
+  }
+  return literal;
+}
+
+namespace {
+std::optional<Literal> decode_number_unchecked(std::string_view text, LiteralError& error) {
   // Split mantissa [exponent] suffix, mirroring the grammar's number token.
   std::size_t k = 0;
   while (k < text.size() && is_digit(text[k])) ++k;
@@ -184,5 +200,7 @@ std::optional<Literal> decode_number(std::string_view text, LiteralError& error)
       "(case-sensitive: m is milli, M is mega)";
   return std::nullopt;
 }
+
+}  // namespace
 
 }  // namespace ringdown

@@ -1562,7 +1562,8 @@ WaveformPtr Loader::eval_waveform_call(const ast::Call& call, Scope* scope, cons
     }
     if (has_freq && !(*value("freq") > 0)) return bad("freq", "pulse() freq must be > 0");
     p.period = has_period ? *value("period") : 1.0 / *value("freq");
-    if (!(p.period > 0)) return bad("period", "pulse() period must be > 0");
+    if (!(p.period > 0) || !std::isfinite(p.period))
+      return bad(has_period ? "period" : "freq", "pulse() period must be > 0 and finite");
     if (has_duty && (*value("duty") < 0 || *value("duty") > 1)) {
       return bad("duty", "pulse() duty must be between 0 and 100%");
     }

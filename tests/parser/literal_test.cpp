@@ -127,5 +127,20 @@ TEST(Literal, NegativeNumbers) {
   EXPECT_DOUBLE_EQ(testing::element(*r.circuit, "V1").waveform->value(0), -0.05);
 }
 
+// A literal beyond the largest double (about 1.8e308, IEEE 754 binary64) would become
+// infinity; it is an error at its own position (found by the mutation fuzz test: an infinite
+// pulse period used to reach the waveform's constructor).
+TEST(Literal, OverflowIsAnErrorAtTheNumber) {
+  auto r = testing::load("current I1 gnd a pulse(high=1m, period=11e30800us, width=1u)\nresistor R1 a gnd 1k\n");
+  ASSERT_FALSE(r.ok());
+  const std::string m = testing::all_messages(r);
+  EXPECT_NE(m.find("'11e30800us' is too large for a number"), std::string::npos) << m;
+  EXPECT_NE(m.find("1:40:"), std::string::npos) << m;  // the number starts at line 1, column 40
+  // A denormal frequency (1e-320 Hz) makes an infinite period.
+  auto f = testing::load("current I1 gnd a pulse(high=1m, freq=(1e-160*1e-160), width=1u)\nresistor R1 a gnd 1k\n");
+  ASSERT_FALSE(f.ok());
+  EXPECT_NE(testing::all_messages(f).find("finite"), std::string::npos) << testing::all_messages(f);
+}
+
 }  // namespace
 }  // namespace ringdown
