@@ -320,7 +320,8 @@ EvaluationPlan::PlannedFigure EvaluationPlan::plan_figure(const FigureCall& call
   return f;
 }
 
-Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t states) const {
+Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t states,
+                                    const EvaluationScope& scope) const {
   Evaluation out;
   // Natural modes, for the ringfreq/damping cross-check, when a figure asks for them.
   std::optional<solver::ModesResult> modes;
@@ -415,7 +416,9 @@ Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t st
     const double samples = static_cast<double>(tr.sample_times().size());
     const double n = static_cast<double>(std::max<std::size_t>(states, 1));
     EnergyBalance& e = out.energy;
-    if (!energy_planned_) {
+    if (!scope.energy_balance) {
+      e.skipped = "not computed for sweep points and trials";
+    } else if (!energy_planned_) {
       e.skipped = "the circuit has more than " + std::to_string(kEnergyElementLimit) + " elements";
     } else if (samples * n * n > kEnergyBudget) {
       e.skipped = std::to_string(states) + " states over " + std::to_string(tr.sample_times().size()) +
@@ -454,9 +457,10 @@ Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t st
   s.limitation = screen_limitation_;
   const std::vector<double> times = tr.sample_times();
   for (const ScreenedVoltage& v : screen_) {
-    double sampled_peak = 0, sum = 0, sum2 = 0;
+    double sampled_peak = 0, sampled_at = 0, sum = 0, sum2 = 0;
     for (double t : times) {
       const double x = tr.value(v.signal, t);
+      if (std::abs(x) > sampled_peak) sampled_at = t;
       sampled_peak = std::max(sampled_peak, std::abs(x));
       sum += x;
       sum2 += x * x;
@@ -467,6 +471,15 @@ Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t st
       continue;
     HazardPoint h;
     h.name = v.name;
+    if (!scope.exact_safety) {
+      h.peak = sampled_peak;
+      h.instant = sampled_at;
+      h.ac_rms = sampled_ac;
+      h.over_dc = h.peak > safety_.dc;
+      h.over_ac = h.ac_rms > safety_.ac_rms;
+      if (h.over_dc || h.over_ac) s.points.push_back(h);
+      continue;
+    }
     Signal sig;
     sig.name = v.name;
     sig.unit = Dimension::volt();
@@ -493,7 +506,7 @@ Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t st
   std::sort(s.points.begin(), s.points.end(),
             [](const HazardPoint& x, const HazardPoint& y) { return x.peak > y.peak; });
   s.hazardous = !s.points.empty();
-  if (s.hazardous) {
+  if (s.hazardous && scope.exact_safety) {
     const double end = tr.end();
     std::vector<std::pair<int, double>> vc, il;
     for (const CapacitorSignal& c : capacitors_) {

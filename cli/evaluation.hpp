@@ -114,6 +114,15 @@ struct Evaluation {
   int failed_expects() const;
 };
 
+// How much of the evaluation a run needs. Sweeps and trials, which run the same circuit
+// hundreds of times, skip the energy balance and screen the mains band on the samples only
+// (no exact peak search, no bleed-down run): the caution is still given, for the runs whose
+// samples leave the band.
+struct EvaluationScope {
+  bool energy_balance = true;
+  bool exact_safety = true;
+};
+
 class EvaluationPlan {
  public:
   // `streamed`: the signals the engine streams (the records), which come first in the
@@ -126,7 +135,8 @@ class EvaluationPlan {
 
   // `states`: the size of the run's state (TransientSummary::states), which sets the cost of
   // the energy balance's quadrature.
-  Evaluation evaluate(const solver::Trajectory& trajectory, std::size_t states) const;
+  Evaluation evaluate(const solver::Trajectory& trajectory, std::size_t states,
+                      const EvaluationScope& scope = {}) const;
 
  private:
   std::size_t index_of(const Signal& signal);

@@ -16,6 +16,7 @@
 #include <cstring>
 #include <exception>
 #include <map>
+#include <optional>
 #include <memory>
 #include <set>
 #include <string>
@@ -111,6 +112,7 @@ struct JobResult {
   std::vector<solver::FigureValue> expect_values;
   std::vector<bool> expect_pass;
   bool pass = true;
+  std::optional<SafetyReport> hazard;         // the mains screen (on the samples), when it fires
   std::vector<double> times;                  // kept with --csv-signals / --plot
   std::vector<std::vector<double>> samples;   // samples[record][k]
 };
@@ -391,7 +393,11 @@ SweepOutcome run_sweep(const SweepContext& ctx) {
             Severity::Error, "the engine produced a value that is not a finite number (NaN or infinity)",
             "the network may be singular or unstable: check for floating parts or negative resistances"));
       if (r.exit_code != kExitOk || !summary.trajectory) return;
-      const Evaluation ev = plan.evaluate(*summary.trajectory, summary.states);
+      EvaluationScope scope;
+      scope.energy_balance = false;
+      scope.exact_safety = false;
+      const Evaluation ev = plan.evaluate(*summary.trajectory, summary.states, scope);
+      if (ev.safety.hazardous) r.hazard = ev.safety;
       for (const FigureOutcome& f : ev.reports) r.reports.push_back(f.value);
       for (const ExpectOutcome& e : ev.expects) {
         r.expect_values.push_back(e.value);
@@ -413,13 +419,27 @@ SweepOutcome run_sweep(const SweepContext& ctx) {
     return label;
   };
 
-  // Warnings: each distinct one once (points repeat the same load and engine warnings).
-  std::set<std::string> seen;
-  for (const Diagnostic& d : warnings) seen.insert(render(d));
+  // Warnings: each kind once (points repeat the same load and engine warnings, trials with
+  // other numbers in them): the key is the position and the message with its numbers blanked,
+  // and a warning that recurs says in how many runs.
+  const auto shape_of = [](const Diagnostic& d) {
+    std::string key = d.where.file + ":" + std::to_string(d.where.line) + ":" + std::to_string(d.where.column) + ":";
+    bool in_number = false;
+    for (char ch : d.message) {
+      const bool digit = (ch >= '0' && ch <= '9') || (in_number && (ch == '.' || ch == 'e' || ch == '-' || ch == '+'));
+      if (digit && !in_number) key += '#';
+      in_number = digit;
+      if (!digit) key += ch;
+    }
+    return key;
+  };
+  std::map<std::string, std::pair<std::size_t, long>> seen;  // shape -> (index in warnings, runs)
+  for (std::size_t k = 0; k < warnings.size(); ++k) seen[shape_of(warnings[k])] = {k, 0};
   const auto add_warning = [&](const Diagnostic& d, const std::string& context) {
     if (d.severity == Severity::Error) return;
-    const std::string key = render(d);
-    if (!seen.insert(key).second) return;
+    const auto [it, fresh] = seen.try_emplace(shape_of(d), warnings.size(), 0);
+    ++it->second.second;
+    if (!fresh) return;
     warnings.push_back(with_context(d, context));
   };
   for (const Point& p : points)
@@ -435,6 +455,9 @@ SweepOutcome run_sweep(const SweepContext& ctx) {
         if (d.severity == Severity::Error) errors.push_back(with_context(d, "at " + job_label(job)));
     }
   }
+  for (const auto& [shape, where] : seen)
+    if (where.second > 1)
+      warnings[where.first].message += " (in " + std::to_string(where.second) + " runs, with their own values)";
   if (worst != kExitOk) {
     Diagnostics all = warnings;
     all.insert(all.end(), errors.begin(), errors.end());
@@ -730,6 +753,21 @@ SweepOutcome run_sweep(const SweepContext& ctx) {
   print_diagnostics(warnings, false);
   print_diagnostics(figure_errors, false);
   if (!figure_errors.empty()) status = kExitBadInput;
+  // The mains caution, once: for the first run whose samples leave the band, with how many do.
+  {
+    std::size_t hazardous = 0, first = results.size();
+    for (std::size_t k = 0; k < results.size(); ++k)
+      if (results[k].hazard) {
+        ++hazardous;
+        if (first == results.size()) first = k;
+      }
+    if (hazardous > 0 && !ctx.safety.accept_risk) {
+      std::fprintf(stderr, "%zu of %zu runs leave the extra-low-voltage band (on their samples); the first is %s:\n",
+                   hazardous, results.size(), job_label(first).empty() ? "the nominal circuit" : job_label(first).c_str());
+      std::fputs(caution_text(*results[first].hazard).c_str(), stderr);
+    }
+    out.json["cautions"] = {{"hazardous_runs", hazardous}, {"runs", results.size()}};
+  }
 
   // --- Verdicts ------------------------------------------------------------------------------
   // Sweeps: every point must meet every expect. Trials: every point's yield must reach
