@@ -66,6 +66,25 @@ FigureCall internal_call(const std::string& function, const Signal& signal, cons
   return call;
 }
 
+// The largest |S| and its instant, from tmax and tmin (two scans; peak would be a third).
+struct Magnitude {
+  solver::FigureValue figure;  // ok/error of the scans
+  double value = 0;
+  double instant = 0;
+};
+Magnitude largest_magnitude(const solver::Trajectory& tr, std::size_t signal, const Signal& s) {
+  Magnitude m;
+  const solver::FigureValue a = solver::evaluate_figure(internal_call("tmax", s, Dimension::second()), tr, signal, std::nullopt);
+  const solver::FigureValue b = solver::evaluate_figure(internal_call("tmin", s, Dimension::second()), tr, signal, std::nullopt);
+  m.figure = a.ok ? b : a;
+  if (a.ok && b.ok) {
+    const double va = std::abs(tr.value(signal, a.value)), vb = std::abs(tr.value(signal, b.value));
+    m.value = std::max(va, vb);
+    m.instant = va >= vb ? a.value : b.value;
+  }
+  return m;
+}
+
 bool is_independent_source(ElementKind k) {
   return k == ElementKind::VoltageSource || k == ElementKind::CurrentSource;
 }
@@ -373,20 +392,12 @@ Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t st
     o.where = part.where;
     solver::FigureValue v;
     if (pr.call.function == "peak") {
-      // The largest magnitude and its instant from tmax and tmin (two scans, not three).
-      FigureCall tmax = pr.call, tmin = pr.call;
-      tmax.function = "tmax";
-      tmin.function = "tmin";
-      tmax.unit = tmin.unit = Dimension::second();
-      const solver::FigureValue a = solver::evaluate_figure(tmax, tr, pr.figure.signal, std::nullopt);
-      const solver::FigureValue b = solver::evaluate_figure(tmin, tr, pr.figure.signal, std::nullopt);
-      v = a.ok ? b : a;
-      if (a.ok && b.ok) {
-        const double va = std::abs(tr.value(pr.figure.signal, a.value));
-        const double vb = std::abs(tr.value(pr.figure.signal, b.value));
-        v.value = std::max(va, vb);
+      const Magnitude m = largest_magnitude(tr, pr.figure.signal, *pr.call.signal);
+      v = m.figure;
+      if (v.ok) {
+        v.value = m.value;
         v.unit = pr.call.unit;
-        o.instant = va >= vb ? a.value : b.value;
+        o.instant = m.instant;
       }
     } else {
       v = solver::evaluate_figure(pr.call, tr, pr.figure.signal, pr.figure.power);
@@ -483,15 +494,9 @@ Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t st
     Signal sig;
     sig.name = v.name;
     sig.unit = Dimension::volt();
-    // The exact largest magnitude: at tmax or tmin (two scans; peak would be a third).
-    const solver::FigureValue a = solver::evaluate_figure(internal_call("tmax", sig, Dimension::second()), tr, v.signal, std::nullopt);
-    const solver::FigureValue b = solver::evaluate_figure(internal_call("tmin", sig, Dimension::second()), tr, v.signal, std::nullopt);
-    h.peak = sampled_peak;
-    if (a.ok && b.ok) {
-      const double va = std::abs(tr.value(v.signal, a.value)), vb = std::abs(tr.value(v.signal, b.value));
-      h.peak = std::max(va, vb);
-      h.instant = va >= vb ? a.value : b.value;
-    }
+    const Magnitude m = largest_magnitude(tr, v.signal, sig);
+    h.peak = m.figure.ok ? m.value : sampled_peak;
+    if (m.figure.ok) h.instant = m.instant;
     h.over_dc = h.peak > safety_.dc;
     h.ac_rms = sampled_ac;
     // The AC rms decides only when the peak does not: then compute it exactly.

@@ -265,6 +265,18 @@ std::string xml_escape(const std::string& text) {
   return out;
 }
 
+JUnitCase refused_case(const std::string& file, const std::string& why, const Diagnostics& diagnostics,
+                       double seconds) {
+  JUnitCase c;
+  c.name = "run " + file;
+  c.classname = file;
+  c.error = true;
+  c.message = why;
+  for (const Diagnostic& d : diagnostics) c.detail += render(d);
+  c.seconds = seconds;
+  return c;
+}
+
 std::string junit_xml(const std::vector<JUnitSuite>& suites) {
   int tests = 0, failures = 0, errors = 0;
   double seconds = 0;

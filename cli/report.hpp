@@ -51,6 +51,10 @@ struct JUnitSuite {
   std::vector<JUnitCase> cases;
 };
 std::string junit_xml(const std::vector<JUnitSuite>& suites);
+// The one test case of a file that could not be run: an <error> with `why` and the
+// diagnostics rendered as its body.
+JUnitCase refused_case(const std::string& file, const std::string& why, const Diagnostics& diagnostics,
+                       double seconds);
 
 // XML 1.0 text escaping (& < > " '), control characters other than tab, newline and
 // carriage return dropped (they are not allowed in XML 1.0).

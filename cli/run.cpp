@@ -318,15 +318,8 @@ FileOutcome execute(const RunOptions& options, const Loader& load, Mode mode) {
     out.exit_code = code;
     out.json["exit_code"] = code;
     out.json["diagnostics"] = diagnostics_json(diagnostics);
-    JUnitCase c;
-    c.name = "run " + options.file;
-    c.classname = options.file;
-    c.error = true;
-    c.message = why;
-    for (const Diagnostic& d : diagnostics) c.detail += render(d);
-    c.seconds = elapsed();
-    out.junit.cases.push_back(c);
-    out.junit.seconds = c.seconds;
+    out.junit.cases.push_back(refused_case(options.file, why, diagnostics, elapsed()));
+    out.junit.seconds = out.junit.cases.back().seconds;
     return out;
   };
   const bool run_mode = mode == Mode::Run;
@@ -759,13 +752,8 @@ int run_check(const CheckOptions& options) {
     if (!readable_or_report(file)) {
       outcome.exit_code = kExitBadInput;
       outcome.json = {{"file", file}, {"exit_code", kExitBadInput}, {"error", "cannot read the file"}};
-      JUnitCase c;
-      c.name = "run " + file;
-      c.classname = file;
-      c.error = true;
-      c.message = "cannot read the file";
       outcome.junit.name = file;
-      outcome.junit.cases.push_back(c);
+      outcome.junit.cases.push_back(refused_case(file, "cannot read the file", {}, 0));
     } else {
       outcome = execute(run, [&file](const LoadOptions& load) { return load_file(file, load); }, Mode::Check);
     }

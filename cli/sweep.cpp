@@ -233,15 +233,8 @@ SweepOutcome run_sweep(const SweepContext& ctx) {
     out.exit_code = code;
     out.json["exit_code"] = code;
     out.json["diagnostics"] = diagnostics_json(diagnostics);
-    JUnitCase c;
-    c.name = "run " + base.file;
-    c.classname = base.file;
-    c.error = true;
-    c.message = why;
-    for (const Diagnostic& d : diagnostics) c.detail += render(d);
-    c.seconds = elapsed();
-    out.junit.cases.push_back(c);
-    out.junit.seconds = c.seconds;
+    out.junit.cases.push_back(refused_case(base.file, why, diagnostics, elapsed()));
+    out.junit.seconds = out.junit.cases.back().seconds;
     return out;
   };
   Diagnostics warnings = ctx.warnings;

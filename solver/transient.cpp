@@ -1207,32 +1207,25 @@ TransientSummary Engine::run() {
     sum_.status = Status::BadInput;
     return finish();
   }
-  // Signals.
-  for (const Signal& s : signals_) {
-    std::vector<Instr> code;
-    std::string error;
-    if (!compiler_.compile(s.expr, code, error)) {
-      diags_.push_back(make_diagnostic(
-          Severity::Error, s.where,
-          "cannot evaluate signal " + s.name + (error.empty() ? "" : ": " + error)));
-      sum_.status = Status::BadInput;
-      return finish();
-    }
-    programs_.push_back(std::move(code));
-  }
-  if (opt_.dense_output) {
-    for (const Signal& s : opt_.trajectory_signals) {
+  // Signals: the streamed ones, and with dense output the trajectory's extra ones.
+  const auto compile_all = [&](const std::vector<Signal>& signals, std::vector<std::vector<Instr>>& programs) {
+    for (const Signal& s : signals) {
       std::vector<Instr> code;
       std::string error;
       if (!compiler_.compile(s.expr, code, error)) {
         diags_.push_back(make_diagnostic(
             Severity::Error, s.where,
             "cannot evaluate signal " + s.name + (error.empty() ? "" : ": " + error)));
-        sum_.status = Status::BadInput;
-        return finish();
+        return false;
       }
-      extra_programs_.push_back(std::move(code));
+      programs.push_back(std::move(code));
     }
+    return true;
+  };
+  if (!compile_all(signals_, programs_) ||
+      (opt_.dense_output && !compile_all(opt_.trajectory_signals, extra_programs_))) {
+    sum_.status = Status::BadInput;
+    return finish();
   }
   std::size_t depth = 1;
   for (const auto& p : programs_) depth = std::max(depth, p.size());
