@@ -10,6 +10,7 @@
 #include "cli/compare.hpp"
 #include "cli/console.hpp"
 #include "cli/demo.hpp"
+#include "cli/distribute.hpp"
 #include "cli/exit_codes.hpp"
 #include "cli/fmt.hpp"
 #include "cli/freq.hpp"
@@ -17,9 +18,10 @@
 #include "cli/modes.hpp"
 #include "cli/run.hpp"
 
-int main(int argc, char** argv) {
+namespace {
+
+int run_command_line(int argc, char** argv) {
   using namespace ringdown::cli;
-  install_cleanup_handlers();
 
   CLI::App app{"ringdown: exact transient simulation of linear RLC circuits", "ringdown"};
   configure_app(app);
@@ -41,6 +43,15 @@ int main(int argc, char** argv) {
   CLI::App* demo_command = demo_available() ? setup_demo(app, demo) : nullptr;
 
   if (const int code = parse_arguments(app, argc, argv); code >= 0) return code;
+  // Under mpirun (cli/distribute.hpp) every rank runs `run` and `check`, whose sweeps and
+  // trials are shared out; only rank 0 writes the JSON and JUnit files. The other commands
+  // run on rank 0 alone.
+  if (!is_root()) {
+    if (!*run_command && !*check_command) return kExitOk;
+    run.json.clear();
+    check.run.json.clear();
+    check.junit.clear();
+  }
   try {
     if (*run_command) return run_run(run);
     if (*check_command) return run_check(check);
@@ -60,4 +71,12 @@ int main(int argc, char** argv) {
     return kExitNumerical;
   }
   return kExitBadInput;
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  ringdown::cli::install_cleanup_handlers();
+  ringdown::cli::DistributedSession session(argc, argv);
+  return session.finish(run_command_line(argc, argv));
 }

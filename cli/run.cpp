@@ -31,6 +31,7 @@
 #include "cli/progress.hpp"
 #include "cli/quantity.hpp"
 #include "cli/report.hpp"
+#include "cli/distribute.hpp"
 #include "cli/sweep.hpp"
 #include "parser/units.hpp"
 #include "solver/transient.hpp"
@@ -343,6 +344,16 @@ FileOutcome execute(const RunOptions& options, const Loader& load, Mode mode) {
       return refuse(kExitBadInput, {}, "gnuplot missing");
     }
   }
+  std::optional<PlotTarget> histogram_target;
+  if (!options.histogram.empty()) {
+    const bool term_clash = !options.plot.empty() && plot_target && plot_target->text();
+    histogram_target = plot_target_or_report(options.histogram, options.csv == "-");
+    if (!histogram_target) return refuse(kExitBadInput, {}, "bad --histogram");
+    if (term_clash && histogram_target->text()) {
+      print_error("--plot term and --histogram term would both draw on the terminal", "write one of them to a .png/.svg/.pdf file");
+      return refuse(kExitBadInput, {}, "--plot term and --histogram term");
+    }
+  }
   if (options.digits < 1 || options.digits > kMaxDigits) {
     print_error("--digits takes a whole number from 1 to 17, got " + std::to_string(options.digits));
     return refuse(kExitBadInput, {}, "bad --digits");
@@ -379,13 +390,19 @@ FileOutcome execute(const RunOptions& options, const Loader& load, Mode mode) {
   const std::size_t rows = expected_rows(plan->until, plan->every);
   if (needs_sweep_runner(circuit, load_options)) {  // sweeps and trials: cli/sweep.hpp
     SweepContext context{&options, &load, load_options, &circuit, plan->until, plan->every,
-                         plan->initial_dc, safety, formula_tolerance, plot_target, !run_mode, warnings};
+                         plan->initial_dc, safety, formula_tolerance, plot_target, !run_mode, warnings, histogram_target};
     SweepOutcome swept = run_sweep(context);
     out.exit_code = swept.exit_code;
     out.failed_expects = swept.failed_expects;
     out.json = std::move(swept.json);
     out.junit = std::move(swept.junit);
     return out;
+  }
+  if (!is_root()) return out;  // a distributed run shares out sweeps only (cli/distribute.hpp)
+  if (histogram_target) {
+    print_error("--histogram draws the reports over trials, and the file has no trials statement",
+                "add e.g. `trials runs=200` and give parts a tol=");
+    return refuse(kExitBadInput, {}, "--histogram without trials");
   }
 
   // --- Outputs (temporaries until the run succeeds) ---------------------------
@@ -632,6 +649,8 @@ CLI::App* setup_run(CLI::App& app, RunOptions& o) {
       ->type_name("PATH");
   cmd->add_option("--best", o.best, "sweeps: the point that meets every expect with the best report, 'min NAME' or 'max NAME'")
       ->type_name("GOAL");
+  cmd->add_option("--histogram", o.histogram, "trials: a histogram of each report, term or PATH.png|.svg|.pdf")
+      ->type_name("TARGET");
   return cmd;
 }
 

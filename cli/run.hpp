@@ -42,6 +42,7 @@ struct RunOptions {
   int jobs = 0;                     // --jobs N: threads for sweeps and trials (0: every core)
   std::string csv_signals;          // --csv-signals PATH: waveforms of a sweep or trials
   std::string best;                 // --best 'min NAME' | 'max NAME'
+  std::string histogram;            // --histogram term|PATH.png|.svg|.pdf: trials, per report
 };
 
 CLI::App* setup_run(CLI::App& app, RunOptions& options);

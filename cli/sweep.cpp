@@ -26,8 +26,11 @@
 #include "cli/atomic_file.hpp"
 #include "cli/console.hpp"
 #include "cli/csv_writer.hpp"
+#include "cli/distribute.hpp"
 #include "cli/exit_codes.hpp"
+#include "cli/histogram_plot.hpp"
 #include "cli/progress.hpp"
+#include "cli/sweep_job.hpp"
 #include "parser/units.hpp"
 #include "solver/draws.hpp"
 #include "solver/transient.hpp"
@@ -102,19 +105,6 @@ struct Point {
   std::string label;           // "Rsn=47 Csn=1e-09"
   std::optional<Circuit> circuit;
   Diagnostics diagnostics;
-};
-
-struct JobResult {
-  int exit_code = kExitOk;
-  Diagnostics diagnostics;     // warnings, or the errors that stopped it
-  std::vector<double> drawn;   // per toleranced part
-  std::vector<solver::FigureValue> reports;
-  std::vector<solver::FigureValue> expect_values;
-  std::vector<bool> expect_pass;
-  bool pass = true;
-  std::optional<SafetyReport> hazard;         // the mains screen (on the samples), when it fires
-  std::vector<double> times;                  // kept with --csv-signals / --plot
-  std::vector<std::vector<double>> samples;   // samples[record][k]
 };
 
 struct TrialsPlan {
@@ -330,7 +320,10 @@ SweepOutcome run_sweep(const SweepContext& ctx) {
   // --- Every (point, trial) ------------------------------------------------------------------
   std::vector<JobResult> results(job_count);
   const std::size_t record_count = base.records.size();
-  parallel_for(job_count, threads, progress, load_share, 1.0 - load_share, [&](std::size_t job) {
+  // Over the ranks of a distributed run (cli/distribute.hpp); one rank: every job here.
+  const auto run_jobs = [&](const std::vector<std::size_t>& jobs) {
+  parallel_for(jobs.size(), threads, progress, load_share, 1.0 - load_share, [&](std::size_t k) {
+    const std::size_t job = jobs[k];
     JobResult& r = results[job];
     const Point& point = points[job / per_point];
     const std::size_t trial = job % per_point;
@@ -404,7 +397,10 @@ SweepOutcome run_sweep(const SweepContext& ctx) {
       r.diagnostics.push_back(command_line_diagnostic(Severity::Error, std::string("the run failed: ") + e.what()));
     }
   });
+  };
+  const bool gathered = run_distributed(results, run_jobs);
   progress.finish();
+  if (!gathered) return out;  // a rank other than 0: its share went to rank 0
 
   const auto job_label = [&](std::size_t job) {
     std::string label = points[job / per_point].label;
@@ -618,8 +614,9 @@ SweepOutcome run_sweep(const SweepContext& ctx) {
       }
       std::fprintf(console, "  toleranced   %s\n", names.c_str());
     }
-    std::fprintf(console, "  runs         %zu on %u thread%s, %s\n", job_count, std::min<unsigned>(threads, static_cast<unsigned>(job_count)),
-                 threads == 1 ? "" : "s", format_si(elapsed(), "s", 3).c_str());
+    const std::string ranks = rank_count() > 1 ? " on each of " + std::to_string(rank_count()) + " ranks" : "";
+    std::fprintf(console, "  runs         %zu on %u thread%s%s, %s\n", job_count, std::min<unsigned>(threads, static_cast<unsigned>(job_count)),
+                 threads == 1 ? "" : "s", ranks.c_str(), format_si(elapsed(), "s", 3).c_str());
     if (!options.csv.empty()) std::fprintf(console, "  csv          %s\n", csv_to_stdout ? "stdout" : options.csv.c_str());
     if (!options.csv_signals.empty()) std::fprintf(console, "  csv signals  %s\n", options.csv_signals.c_str());
 
@@ -743,6 +740,43 @@ SweepOutcome run_sweep(const SweepContext& ctx) {
       status = kExitBadInput;
     }
   }
+  // --- Histogram of each report over the trials (cli/histogram_plot.hpp) ---------------------
+  if (ctx.histogram && status == kExitOk) {
+    std::string error;
+    if (!trials.active) {
+      error = "--histogram: no trials ran (no part has tol=)";
+    } else {
+      HistogramRequest request;
+      request.target = *ctx.histogram;
+      request.title = base.title.empty() ? base.file : base.title;
+      for (const Point& p : points) request.point_labels.push_back(points.size() > 1 ? p.label : "");
+      for (std::size_t i = 0; i < base.reports.size(); ++i) {
+        HistogramPanel panel;
+        panel.name = base.reports[i].name;
+        panel.figure = base.reports[i].figure.text;
+        panel.unit = base.reports[i].figure.unit;
+        panel.values.resize(points.size());
+        for (std::size_t job = 0; job < job_count; ++job) {
+          if (i >= results[job].reports.size() || !results[job].reports[i].ok) continue;
+          const solver::FigureValue& f = results[job].reports[i];
+          panel.values[job / per_point].push_back(f.value);
+          if (!panel.unit) panel.unit = f.unit;
+        }
+        for (const Expect& e : base.expects)
+          if (!panel.limit && e.figure.text == panel.figure && e.op != CompareOp::Equal) {
+            panel.limit = e.value;
+            panel.limit_label = limit_text(e);
+          }
+        request.panels.push_back(std::move(panel));
+      }
+      if (draw_histograms(request, error)) error.clear();
+      else if (error.empty()) error = "--histogram: gnuplot failed";
+    }
+    if (!error.empty()) {
+      print_error(error);
+      status = kExitBadInput;
+    }
+  }
   print_diagnostics(warnings, false);
   print_diagnostics(figure_errors, false);
   if (!figure_errors.empty()) status = kExitBadInput;
@@ -859,6 +893,7 @@ SweepOutcome run_sweep(const SweepContext& ctx) {
   all.insert(all.end(), failed.begin(), failed.end());
   j["diagnostics"] = diagnostics_json(all);
   j["run_time"] = {{"total", elapsed()}, {"threads", threads}};
+  if (rank_count() > 1) j["run_time"]["ranks"] = rank_count();
 
   if (trials.active) {
     for (std::size_t p = 0; p < points.size(); ++p) {

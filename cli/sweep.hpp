@@ -48,6 +48,7 @@ struct SweepContext {
   std::optional<PlotTarget> plot;
   bool check = false;           // `check`: quiet, gate on the verdicts
   Diagnostics warnings;         // load warnings of the base circuit
+  std::optional<PlotTarget> histogram;  // --histogram: trials (cli/histogram_plot.hpp)
 };
 
 struct SweepOutcome {
