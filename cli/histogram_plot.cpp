@@ -109,8 +109,10 @@ bool draw_histograms(const HistogramRequest& request, std::string& error) {
         const double at = *panel.limit / x.factor;
         gp << "set arrow 1 from " << number(at) << ", graph 0 to " << number(at) << ", graph 1 nohead "
            << (text ? "lt 0" : "lw 2 dt 2 lc rgb '#c00000'") << " front\n";
-        gp << "set label 2 " << gnuplot_quoted("limit " + panel.limit_label) << " at " << number(at)
-           << ", graph 0.92 " << (text ? "left offset 1,0" : "left offset 0.5,0 tc rgb '#c00000'") << " front\n";
+        // The label on the side of the line with more room.
+        const bool right_half = *panel.limit > 0.5 * (lo + hi);
+        gp << "set label 2 " << gnuplot_quoted("limit " + panel.limit_label) << " at " << number(at) << ", graph 0.92 "
+           << (right_half ? "right offset -1,0" : "left offset 1,0") << (text ? "" : " tc rgb '#c00000'") << " front\n";
       }
       const double width = (edges.back() - edges.front()) / static_cast<double>(edges.size() - 1) / x.factor;
       gp << "set boxwidth " << number(width) << " absolute\n";

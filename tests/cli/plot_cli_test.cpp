@@ -23,6 +23,7 @@
 
 #include "cli/bode_plot.hpp"
 #include "cli/gnuplot.hpp"
+#include "cli/histogram_plot.hpp"
 #include "cli/pole_plot.hpp"
 #include "process.hpp"
 #include "scratch_dir.hpp"
@@ -425,3 +426,91 @@ TEST(PlotHelpers, TextPanelsGetWholeRows) {
 }
 
 }  // namespace
+
+// --- histograms of trials (--histogram; cli/histogram_plot.hpp) ------------------------
+
+// An RC charged to 1 V whose R (10 %) and C (20 %) are drawn 40 times: tau = R C spreads, and
+// so does the 10-90 % rise time, 2.197 tau (ln 9, first-order step response; from memory).
+// The expect's limit (3 ms) is drawn as a line in the rise time's panel.
+constexpr const char* kToleranced = R"(title "Toleranced RC for histograms"
+voltage   V1 in gnd step(from=0, to=1V, at=0)
+resistor  R1 in out 1k tol=10%
+capacitor C1 out gnd 1uF tol=20%
+transient until=20m every=20u
+record out
+report tr = rise(out)
+report vmid = at(out, 2ms)
+expect rise(out) < 3ms
+trials runs=40 seed=3
+)";
+
+TEST_F(PlotCli, HistogramFilesAreComplete) {
+  const std::string file = write("rc.rlc", kToleranced);
+  for (const char* extension : {"png", "svg", "pdf"}) {
+    const std::string target = path(std::string("hist.") + extension);
+    const ProcessResult r = run_ringdown({"run", file, "--histogram", target, "--quiet", "--jobs", "2"});
+    ASSERT_EQ(r.exit_code, kOk) << extension << "\n" << r.err;
+    const std::string bytes = read_all(target);
+    expect_complete(bytes, extension);
+    if (std::string(extension) == "svg") {
+      // The title, one panel per report labelled with its figure and SI-prefixed unit, the
+      // count axis, and the expect's limit on the rise time's panel.
+      for (const char* text : {"Toleranced RC for histograms", "tr = rise(out) (ms)", "vmid = at(out, 2ms) (mV)",
+                               "trials", "limit &lt; 3 ms"})
+        EXPECT_NE(bytes.find(text), std::string::npos) << text;
+    }
+  }
+  EXPECT_TRUE(hidden_files().empty());
+}
+
+TEST_F(PlotCli, HistogramTerminalPlotFits) {
+  const std::string file = write("rc.rlc", kToleranced);
+  const ProcessResult r = run_ringdown({"run", file, "--histogram", "term", "--quiet"},
+                                       {{"COLUMNS", "90"}, {"LINES", "40"}});
+  ASSERT_EQ(r.exit_code, kOk) << r.err;
+  const std::vector<std::string> plot = plot_lines(r.out, "Toleranced RC for histograms");
+  expect_fits(plot, 90, 40, "histogram");
+  EXPECT_NE(r.out.find("tr = rise(out) (ms)"), std::string::npos) << r.out;
+  EXPECT_NE(r.out.find("vmid = at(out, 2ms) (mV)"), std::string::npos) << r.out;
+}
+
+TEST_F(PlotCli, HistogramNeedsTrialsAndItsOwnTarget) {
+  const std::string plain = write("plain.rlc", kLowPass);
+  ProcessResult r = run_ringdown({"run", plain, "--histogram", path("h.png"), "--quiet"});
+  EXPECT_EQ(r.exit_code, kBadInput);
+  EXPECT_NE(r.err.find("no trials statement"), std::string::npos) << r.err;
+  const std::string file = write("rc.rlc", kToleranced);
+  r = run_ringdown({"run", file, "--histogram", "term", "--plot", "term", "--quiet"});
+  EXPECT_EQ(r.exit_code, kBadInput);
+  EXPECT_NE(r.err.find("both draw on the terminal"), std::string::npos) << r.err;
+  r = run_ringdown({"run", file, "--histogram", path("h.jpg"), "--quiet"});
+  EXPECT_EQ(r.exit_code, kBadInput);
+  EXPECT_FALSE(fs::exists(path("h.png")));
+  EXPECT_FALSE(fs::exists(path("h.jpg")));
+  EXPECT_TRUE(hidden_files().empty());
+}
+
+// The bins: ceil(sqrt(n)) equal bins within [5, 40] (the square-root choice; common practice,
+// no source) over the values of every point, the maximum counted in the last bin.
+TEST(HistogramBins, SquareRootChoiceOverEveryPoint) {
+  using ringdown::cli::histogram_counts;
+  using ringdown::cli::histogram_edges;
+  std::vector<double> a, b;
+  for (int i = 0; i < 100; ++i) a.push_back(i);           // 0..99
+  for (int i = 0; i < 100; ++i) b.push_back(50 + i);      // 50..149
+  const std::vector<double> edges = histogram_edges({a, b});
+  ASSERT_EQ(edges.size(), 11u);  // sqrt(100) = 10 bins
+  EXPECT_DOUBLE_EQ(edges.front(), 0);
+  EXPECT_DOUBLE_EQ(edges.back(), 149);
+  const std::vector<long> ca = histogram_counts(a, edges), cb = histogram_counts(b, edges);
+  long total = 0;
+  for (long c : ca) total += c;
+  EXPECT_EQ(total, 100);
+  EXPECT_EQ(cb.back(), 15);  // 134.1..149 holds 135..149
+  EXPECT_EQ(ca.back(), 0);
+  EXPECT_EQ(histogram_edges({{1, 2, 3}}).size(), 6u);  // at least 5 bins
+  const std::vector<double> one = histogram_edges({{2.0, 2.0}});
+  ASSERT_EQ(one.size(), 2u);  // one value: one bin around it
+  EXPECT_EQ(histogram_counts({2.0, 2.0}, one), std::vector<long>{2});
+  EXPECT_TRUE(histogram_edges({{}}).empty());
+}

@@ -27,7 +27,7 @@ compare() {
   (cd "$m" && timeout 300 "${mpi[@]}" "$bin" "$@" --no-progress >stdout 2>stderr) || rm=$?
   local ok=1
   if [ "$rs" != "$rm" ]; then echo "check_mpi: $name: exit code $rs serial, $rm on 2 ranks"; ok=0; fi
-  for f in table.csv signals.csv; do
+  for f in table.csv signals.csv hist.svg; do
     if [ -e "$s/$f" ] || [ -e "$m/$f" ]; then
       cmp "$s/$f" "$m/$f" || { echo "check_mpi: $name: $f differs"; ok=0; }
     fi
@@ -43,11 +43,12 @@ compare() {
 }
 
 # Trials (a shipped example with `trials runs=200`), one thread per rank and two.
-compare trials run "$repo/circuits/mains_bleeder.rlc" --csv table.csv --jobs 1
-compare trials-threads run "$repo/circuits/mains_bleeder.rlc" --csv table.csv --jobs 2 --accept-mains-risk
+compare trials run "$repo/circuits/mains_bleeder.rlc" --every 100ms --csv table.csv --jobs 1
+compare trials-threads run "$repo/circuits/mains_bleeder.rlc" --every 100ms --csv table.csv --jobs 2 --accept-mains-risk \
+  --histogram hist.svg
 # A sweep given by --set NAME=LIST on a shipped example, with the waveforms of every point.
 compare sweep run "$repo/circuits/flyback_snubber.rlc" --set 'Rsnub=e12(22Ohm, 220Ohm)' \
   --csv table.csv --csv-signals signals.csv --jobs 1
 # check: the same exit code on every rank (the examples' own limits).
-compare check check "$repo"/circuits/*.rlc
+compare check check "$repo"/circuits/*.rlc --jobs 2
 exit "$status"
