@@ -14,6 +14,7 @@ PACKAGES=(
   libcli11-dev nlohmann-json3-dev libfmt-dev
   libgtest-dev libgmock-dev libbenchmark-dev
   gnuplot-nox libgnuplot-iostream-dev
+  libopenmpi-dev openmpi-bin          # the optional MPI build (RINGDOWN_MPI, docs/cluster.md; CI)
   python3 python3-numpy python3-scipy python3-mpmath   # reference libraries for tests/bench
 )
 
