@@ -73,7 +73,7 @@ bool draw_histograms(const HistogramRequest& request, std::string& error) {
     std::ostringstream gp;
     gp << page_commands(request.title, text, size.columns);
     gp << "set style fill " << (text ? "empty" : "transparent solid 0.45 border") << "\n";
-    gp << "set ylabel 'trials'\nset yrange [0:*]\nset offsets 0, 0, graph 0.1, 0\n";
+    gp << (text ? "unset ylabel\n" : "set ylabel 'trials'\n") << "set yrange [0:*]\nset offsets 0, 0, graph 0.1, 0\n";
     // Panel frames in screen fractions: a title band, then equal slots.
     const double title = text ? 2.0 / size.lines : static_cast<double>(kTitlePx) / image.height;
     const double axis = text ? static_cast<double>(kTextAxisRows + 1) / size.lines
@@ -96,6 +96,8 @@ bool draw_histograms(const HistogramRequest& request, std::string& error) {
       const std::string unit = x.prefix + symbol;
       gp << "set xlabel " << gnuplot_quoted(panel.name + " = " + panel.figure + (unit.empty() ? "" : " (" + unit + ")")) << "\n";
       gp << "unset arrow\nunset label\n";
+      // The text terminal drops a rotated y label: the label goes in the top border instead.
+      if (text) gp << "set label 3 'trials' at graph 0, graph 1 left front offset 1,0\n";
       if (edges.empty()) {
         gp << "set xrange [*:*]\nset label 1 " << gnuplot_quoted("no trial has a value for " + panel.name)
            << " at graph 0.5,0.5 center\nplot NaN notitle\n";
@@ -107,7 +109,8 @@ bool draw_histograms(const HistogramRequest& request, std::string& error) {
       gp << "set xrange [" << number((lo - pad) / x.factor) << ":" << number((hi + pad) / x.factor) << "]\n";
       if (panel.limit) {
         const double at = *panel.limit / x.factor;
-        gp << "set arrow 1 from " << number(at) << ", graph 0 to " << number(at) << ", graph 1 nohead "
+        // A text plot rounds graph 1 up to the row above the border: stop just below it.
+        gp << "set arrow 1 from " << number(at) << ", graph 0 to " << number(at) << ", graph " << (text ? "0.97" : "1") << " nohead "
            << (text ? "lt 0" : "lw 2 dt 2 lc rgb '#c00000'") << " front\n";
         // The label on the side of the line with more room.
         const bool right_half = *panel.limit > 0.5 * (lo + hi);
