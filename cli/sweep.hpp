@@ -7,12 +7,15 @@
 // exactly as there). A trial is its point's circuit with each toleranced part's main
 // element scaled by a draw of solver/draws.hpp. Points are loaded in parallel, then every
 // (point, trial) runs in parallel over --jobs threads; each result is stored at its index,
-// so every output is identical to a serial run's whatever the thread count.
+// so every output is identical to a serial run's whatever the thread count. Under mpirun
+// (RINGDOWN_MPI) the jobs are also dealt to the ranks and gathered on rank 0
+// (cli/distribute.hpp), with the same outputs.
 //
 // Outputs: the table on stdout (points: swept values, reports, verdicts; trials: min, mean,
 // max, sigma of each report and the yield with its Wilson 95 % interval), `--csv` (the
 // table), `--csv-signals` (a column per point and signal), `--best`, `--plot` (signals
-// overlaid across points), `--json`, the JUnit cases of `check`. Layouts: docs/commands.md.
+// overlaid across points), `--histogram` (trials: cli/histogram_plot.hpp), `--json`, the
+// JUnit cases of `check`. Layouts: docs/commands.md.
 //
 // Not here: the engine (solver/), the draws (solver/draws.hpp), parsing lists (parser/).
 #pragma once
