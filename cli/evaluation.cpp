@@ -479,15 +479,20 @@ Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t st
     double peak = 0, at = 0, sum = 0, sum2 = 0;
   };
   std::vector<Sampled> sampled(screen_.size());
-  for (double t : times)
+  std::vector<std::size_t> screened(screen_.size());
+  for (std::size_t i = 0; i < screen_.size(); ++i) screened[i] = screen_[i].signal;
+  std::vector<double> at_t(screen_.size());
+  for (double t : times) {
+    tr.values(screened.data(), screened.size(), t, at_t.data());
     for (std::size_t i = 0; i < screen_.size(); ++i) {
       Sampled& q = sampled[i];
-      const double x = tr.value(screen_[i].signal, t);
+      const double x = at_t[i];
       if (std::abs(x) > q.peak) q.at = t;
       q.peak = std::max(q.peak, std::abs(x));
       q.sum += x;
       q.sum2 += x * x;
     }
+  }
   for (std::size_t i = 0; i < screen_.size(); ++i) {
     const ScreenedVoltage& v = screen_[i];
     const double sampled_peak = sampled[i].peak, sampled_at = sampled[i].at;
