@@ -72,10 +72,11 @@ struct Magnitude {
   double value = 0;
   double instant = 0;
 };
-Magnitude largest_magnitude(const solver::Trajectory& tr, std::size_t signal, const Signal& s) {
+Magnitude largest_magnitude(const solver::Trajectory& tr, std::size_t signal, const Signal& s,
+                            solver::ScanMemo& memo) {
   Magnitude m;
-  const solver::FigureValue a = solver::evaluate_figure(internal_call("tmax", s, Dimension::second()), tr, signal, std::nullopt);
-  const solver::FigureValue b = solver::evaluate_figure(internal_call("tmin", s, Dimension::second()), tr, signal, std::nullopt);
+  const solver::FigureValue a = solver::evaluate_figure(internal_call("tmax", s, Dimension::second()), tr, signal, std::nullopt, &memo);
+  const solver::FigureValue b = solver::evaluate_figure(internal_call("tmin", s, Dimension::second()), tr, signal, std::nullopt, &memo);
   m.figure = a.ok ? b : a;
   if (a.ok && b.ok) {
     const double va = std::abs(tr.value(signal, a.value)), vb = std::abs(tr.value(signal, b.value));
@@ -196,7 +197,7 @@ int Evaluation::failed_expects() const {
 }
 
 EvaluationPlan::EvaluationPlan(const Circuit& circuit, const std::vector<Signal>& streamed,
-                               const SafetyOptions& safety)
+                               const SafetyOptions& safety, const EvaluationScope& scope)
     : circuit_(circuit), safety_(safety), streamed_count_(streamed.size()),
       streamed_names_(streamed) {
   for (const Report& r : circuit.reports) report_plan_.push_back(plan_figure(r.figure));
@@ -267,7 +268,7 @@ EvaluationPlan::EvaluationPlan(const Circuit& circuit, const std::vector<Signal>
   // Energy balance over every primitive element (hidden esr/esl/dcr/rpar/srf included).
   // Each element adds a row to the engine's output map: beyond a few thousand elements
   // that map would cost more memory than the run itself.
-  if (circuit.elements.size() > kEnergyElementLimit) return;
+  if (!scope.energy_balance || circuit.elements.size() > kEnergyElementLimit) return;
   energy_planned_ = true;
   std::vector<SignalExpr> delivered, dissipated, stored;
   for (std::size_t e = 0; e < circuit.elements.size(); ++e) {
@@ -342,6 +343,9 @@ EvaluationPlan::PlannedFigure EvaluationPlan::plan_figure(const FigureCall& call
 Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t states,
                                     const EvaluationScope& scope) const {
   Evaluation out;
+  // One scan per signal and window for every figure below (reports and expects on the same
+  // signal, tmax and tmin of a rating).
+  solver::ScanMemo memo;
   // Natural modes, for the ringfreq/damping cross-check, when a figure asks for them.
   std::optional<solver::ModesResult> modes;
   {
@@ -361,7 +365,7 @@ Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t st
     o.name = r.name;
     o.call = &r.figure;
     o.where = r.where;
-    o.value = solver::evaluate_figure(r.figure, tr, report_plan_[i].signal, report_plan_[i].power);
+    o.value = solver::evaluate_figure(r.figure, tr, report_plan_[i].signal, report_plan_[i].power, &memo);
     cross_check_ringing(r.figure, o.value, modes);
     if (!o.value.ok)
       out.diagnostics.push_back(make_diagnostic(Severity::Error, r.where,
@@ -372,7 +376,7 @@ Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t st
     const Expect& e = circuit_.expects[i];
     ExpectOutcome o;
     o.expect = &e;
-    o.value = solver::evaluate_figure(e.figure, tr, expect_plan_[i].signal, expect_plan_[i].power);
+    o.value = solver::evaluate_figure(e.figure, tr, expect_plan_[i].signal, expect_plan_[i].power, &memo);
     cross_check_ringing(e.figure, o.value, modes);
     o.pass = o.value.ok && solver::expect_holds(e, o.value.value);
     if (!o.value.ok)
@@ -392,7 +396,7 @@ Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t st
     o.where = part.where;
     solver::FigureValue v;
     if (pr.call.function == "peak") {
-      const Magnitude m = largest_magnitude(tr, pr.figure.signal, *pr.call.signal);
+      const Magnitude m = largest_magnitude(tr, pr.figure.signal, *pr.call.signal, memo);
       v = m.figure;
       if (v.ok) {
         v.value = m.value;
@@ -400,7 +404,7 @@ Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t st
         o.instant = m.instant;
       }
     } else {
-      v = solver::evaluate_figure(pr.call, tr, pr.figure.signal, pr.figure.power);
+      v = solver::evaluate_figure(pr.call, tr, pr.figure.signal, pr.figure.power, &memo);
     }
     o.ok = v.ok;
     o.error = v.error;
@@ -467,15 +471,32 @@ Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t st
   s.band = safety_;
   s.limitation = screen_limitation_;
   const std::vector<double> times = tr.sample_times();
-  for (const ScreenedVoltage& v : screen_) {
-    double sampled_peak = 0, sampled_at = 0, sum = 0, sum2 = 0;
-    for (double t : times) {
-      const double x = tr.value(v.signal, t);
-      if (std::abs(x) > sampled_peak) sampled_at = t;
-      sampled_peak = std::max(sampled_peak, std::abs(x));
-      sum += x;
-      sum2 += x * x;
+  // The sampled statistics of every screened voltage, instant by instant: the trajectory
+  // keeps its state at the last instant asked, so each sample costs one lookup for all the
+  // voltages (voltage by voltage it would cost one per voltage and sample). Each voltage's
+  // sums still run over the samples in time order, so the values do not change.
+  struct Sampled {
+    double peak = 0, at = 0, sum = 0, sum2 = 0;
+  };
+  std::vector<Sampled> sampled(screen_.size());
+  std::vector<std::size_t> screened(screen_.size());
+  for (std::size_t i = 0; i < screen_.size(); ++i) screened[i] = screen_[i].signal;
+  std::vector<double> at_t(screen_.size());
+  for (double t : times) {
+    tr.values(screened.data(), screened.size(), t, at_t.data());
+    for (std::size_t i = 0; i < screen_.size(); ++i) {
+      Sampled& q = sampled[i];
+      const double x = at_t[i];
+      if (std::abs(x) > q.peak) q.at = t;
+      q.peak = std::max(q.peak, std::abs(x));
+      q.sum += x;
+      q.sum2 += x * x;
     }
+  }
+  for (std::size_t i = 0; i < screen_.size(); ++i) {
+    const ScreenedVoltage& v = screen_[i];
+    const double sampled_peak = sampled[i].peak, sampled_at = sampled[i].at;
+    const double sum = sampled[i].sum, sum2 = sampled[i].sum2;
     const double n = static_cast<double>(std::max<std::size_t>(times.size(), 1));
     const double sampled_ac = std::sqrt(std::max(0.0, sum2 / n - (sum / n) * (sum / n)));
     if (sampled_peak < kScreenMargin * safety_.dc && sampled_ac < kScreenMargin * safety_.ac_rms)
@@ -494,7 +515,7 @@ Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t st
     Signal sig;
     sig.name = v.name;
     sig.unit = Dimension::volt();
-    const Magnitude m = largest_magnitude(tr, v.signal, sig);
+    const Magnitude m = largest_magnitude(tr, v.signal, sig, memo);
     h.peak = m.figure.ok ? m.value : sampled_peak;
     if (m.figure.ok) h.instant = m.instant;
     h.over_dc = h.peak > safety_.dc;

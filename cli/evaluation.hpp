@@ -127,14 +127,16 @@ class EvaluationPlan {
  public:
   // `streamed`: the signals the engine streams (the records), which come first in the
   // trajectory.
+  // `scope`: what evaluate() will be asked for; without the energy balance its three
+  // signals (a term per element) are not planned, so the engine does not carry them.
   EvaluationPlan(const Circuit& circuit, const std::vector<Signal>& streamed,
-                 const SafetyOptions& safety);
+                 const SafetyOptions& safety, const EvaluationScope& scope = {});
 
   // Signals for TransientOptions::trajectory_signals.
   const std::vector<Signal>& extra_signals() const { return extra_; }
 
   // `states`: the size of the run's state (TransientSummary::states), which sets the cost of
-  // the energy balance's quadrature.
+  // the energy balance's quadrature. `scope` must not ask for more than the plan's.
   Evaluation evaluate(const solver::Trajectory& trajectory, std::size_t states,
                       const EvaluationScope& scope = {}) const;
 

@@ -350,7 +350,10 @@ SweepOutcome run_sweep(const SweepContext& ctx) {
         }
         c = &*copy;
       }
-      const EvaluationPlan plan(*c, c->records, ctx.safety);
+      EvaluationScope scope;
+      scope.energy_balance = false;
+      scope.exact_safety = false;
+      const EvaluationPlan plan(*c, c->records, ctx.safety, scope);
       solver::TransientOptions engine;
       engine.until = ctx.until;
       engine.every = ctx.every;
@@ -379,9 +382,6 @@ SweepOutcome run_sweep(const SweepContext& ctx) {
             Severity::Error, "the engine produced a value that is not a finite number (NaN or infinity)",
             "the network may be singular or unstable: check for floating parts or negative resistances"));
       if (r.exit_code != kExitOk || !summary.trajectory) return;
-      EvaluationScope scope;
-      scope.energy_balance = false;
-      scope.exact_safety = false;
       const Evaluation ev = plan.evaluate(*summary.trajectory, summary.states, scope);
       if (ev.safety.hazardous) r.hazard = ev.safety;
       for (const FigureOutcome& f : ev.reports) r.reports.push_back(f.value);

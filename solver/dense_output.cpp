@@ -120,6 +120,10 @@ class DenseTrajectory final : public Trajectory {
   }
   double value(std::size_t k, double t) const override { return evaluate(k, t, false, false); }
   double derivative(std::size_t k, double t) const override { return evaluate(k, t, false, true); }
+  void values(const std::size_t* signals, std::size_t count, double t, double* out) const override {
+    std::lock_guard<std::mutex> lock(mutex_);
+    for (std::size_t i = 0; i < count; ++i) out[i] = evaluate_locked(signals[i], t, false, false);
+  }
   double value_before(std::size_t k, double t) const override {
     return evaluate(k, t, true, false);
   }
@@ -131,6 +135,9 @@ class DenseTrajectory final : public Trajectory {
  private:
   double evaluate(std::size_t k, double t, bool left, bool want_derivative) const {
     std::lock_guard<std::mutex> lock(mutex_);
+    return evaluate_locked(k, t, left, want_derivative);
+  }
+  double evaluate_locked(std::size_t k, double t, bool left, bool want_derivative) const {
     if (k >= p_.programs.size()) return std::numeric_limits<double>::quiet_NaN();
     t = std::clamp(t, 0.0, p_.end);
     if (!(memo_valid_ && memo_t_ == t && memo_left_ == left)) locate(t, left);

@@ -30,7 +30,9 @@
 #include <cmath>
 #include <functional>
 #include <limits>
+#include <memory>
 #include <numbers>
+#include <optional>
 #include <sstream>
 
 namespace ringdown::solver {
@@ -574,9 +576,29 @@ double arg_or(const FigureCall& call, const char* key, double fallback) {
 
 }  // namespace
 
+struct ScanMemo::Impl {
+  struct Kept {
+    const Trajectory* trajectory;
+    std::size_t signal;
+    double a, b;
+    std::unique_ptr<const Scan> scan;
+  };
+  std::vector<Kept> kept;
+
+  const Scan& scan(const Trajectory& tr, std::size_t signal, double a, double b) {
+    for (const Kept& k : kept)
+      if (k.trajectory == &tr && k.signal == signal && k.a == a && k.b == b) return *k.scan;
+    kept.push_back({&tr, signal, a, b, std::make_unique<const Scan>(signal_curve(tr, signal), tr, a, b)});
+    return *kept.back().scan;
+  }
+};
+ScanMemo::ScanMemo() : impl(std::make_unique<Impl>()) {}
+ScanMemo::~ScanMemo() = default;
+
 FigureValue evaluate_figure(const FigureCall& call, const Trajectory& trajectory,
                             std::size_t signal_index,
-                            std::optional<std::pair<std::size_t, std::size_t>> power_signals) {
+                            std::optional<std::pair<std::size_t, std::size_t>> power_signals,
+                            ScanMemo* memo) {
   const std::string& f = call.function;
   const Unit signal_unit = call.signal ? call.signal->unit : Unit{};
   const std::string signal_name = call.signal ? call.signal->name : std::string("its part");
@@ -648,7 +670,9 @@ FigureValue evaluate_figure(const FigureCall& call, const Trajectory& trajectory
     return r;
   }
 
-  const Scan scan(s, trajectory, a, b);
+  std::optional<Scan> own;
+  if (!memo) own.emplace(s, trajectory, a, b);
+  const Scan& scan = memo ? memo->impl->scan(trajectory, signal_index, a, b) : *own;
 
   if (f == "max" || f == "min" || f == "peak" || f == "pp" || f == "tmax" || f == "tmin") {
     const auto [hi, thi] = scan.extreme(+1);

@@ -16,6 +16,7 @@
 #pragma once
 
 #include <cstddef>
+#include <memory>
 #include <optional>
 #include <string>
 #include <utility>
@@ -45,9 +46,25 @@ struct FigureValue {
 // Unit when call.unit is empty: the signal's unit for max min peak pp final at mean rms;
 // s for tmax tmin rise settle when; signal unit * s for integral, / s for slope; J, W for
 // energy, power; Hz for ringfreq; dimensionless for overshoot undershoot damping.
+// The scans of one trajectory (the nodes, extrema and jumps of a signal over a window, what
+// every figure but the integrals and at/final is read from), kept for later figures of the
+// same signal and window: a file's `report os = overshoot(out)` and `expect overshoot(out)
+// < 10%` then scan `out` once. Only for figures on one trajectory, which must outlive it;
+// not shared between threads.
+class ScanMemo {
+ public:
+  ScanMemo();
+  ~ScanMemo();
+  ScanMemo(const ScanMemo&) = delete;
+  ScanMemo& operator=(const ScanMemo&) = delete;
+  struct Impl;
+  std::unique_ptr<Impl> impl;
+};
+
 FigureValue evaluate_figure(const FigureCall& call, const Trajectory& trajectory,
                             std::size_t signal_index,
-                            std::optional<std::pair<std::size_t, std::size_t>> power_signals);
+                            std::optional<std::pair<std::size_t, std::size_t>> power_signals,
+                            ScanMemo* memo = nullptr);
 
 // True when `value` satisfies the expect: < <= > >= against expect.value, or for `=`,
 // abs(value - expect.value) <= TOL, TOL = within * abs(expect.value) when within_relative

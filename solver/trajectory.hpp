@@ -37,6 +37,12 @@ class Trajectory {
   virtual double value(std::size_t signal, double t) const = 0;
   virtual double derivative(std::size_t signal, double t) const = 0;
 
+  // value(signals[i], t) for i < count into out[i]: several signals at one instant (the
+  // samples of the safety screen). An engine that locates t once may override it.
+  virtual void values(const std::size_t* signals, std::size_t count, double t, double* out) const {
+    for (std::size_t i = 0; i < count; ++i) out[i] = value(signals[i], t);
+  }
+
   // Left limits at a corner. The default evaluates one ulp before t, where the previous
   // segment's formula applies: exact to rounding for a formula that is smooth up to t.
   // An engine that stores the state just before each corner may override these.
