@@ -5,6 +5,7 @@
 #include <algorithm>
 #include <cmath>
 #include <limits>
+#include <vector>
 #include <unsupported/Eigen/MatrixFunctions>
 
 #if __has_include("solver/stiff_exponential.hpp")
@@ -236,6 +237,74 @@ void multiply(const Eigen::MatrixXd& P, const Eigen::VectorXd& x, Eigen::VectorX
     case 8: multiply_fixed<8>(P, x, y); return;
     default: y.noalias() = P * x; return;
   }
+}
+
+SparsePropagator sparse_propagator(const Eigen::MatrixXd& P, const Eigen::VectorXd& row_scale,
+                                   const Eigen::VectorXd& col_scale) {
+  const Eigen::Index rows = P.rows(), cols = P.cols();
+  SparsePropagator out;
+  out.P.resize(rows, cols);
+  std::vector<Eigen::Triplet<double>> kept;
+  Eigen::VectorXd row(cols);
+  for (Eigen::Index i = 0; i < rows; ++i) {
+    // Row i in balanced coordinates: P_ij c_j / r_i.
+    double norm = 0;
+    for (Eigen::Index j = 0; j < cols; ++j) {
+      row(j) = std::abs(P(i, j)) * col_scale(j) / row_scale(i);
+      norm += row(j);
+    }
+    const double cut = kUnitRoundoff * norm / static_cast<double>(cols);
+    double dropped = 0;
+    for (Eigen::Index j = 0; j < cols; ++j) {
+      if (row(j) > cut)
+        kept.emplace_back(static_cast<int>(i), static_cast<int>(j), P(i, j));
+      else
+        dropped += row(j);
+    }
+    if (norm > 0) out.dropped = std::max(out.dropped, dropped / norm);
+  }
+  out.P.setFromTriplets(kept.begin(), kept.end());
+  out.P.makeCompressed();
+  return out;
+}
+
+double RunMatrix::bytes() const {
+  if (!is_sparse) return 8.0 * static_cast<double>(dense.size());
+  return 12.0 * static_cast<double>(sparse.nonZeros()) + 8.0 * static_cast<double>(sparse.rows());
+}
+
+void RunMatrix::apply(const Eigen::VectorXd& x, Eigen::VectorXd& y) const {
+  if (is_sparse) {
+    y.resize(sparse.rows());
+    y.noalias() = sparse * x;
+  } else if (dense.rows() == dense.cols()) {
+    y.resize(dense.rows());
+    multiply(dense, x, y);
+  } else {
+    y.resize(dense.rows());
+    y.noalias() = dense * x;
+  }
+}
+
+Eigen::MatrixXd RunMatrix::top_left(Eigen::Index r) const {
+  if (!is_sparse) return dense.topLeftCorner(r, r);
+  return Eigen::MatrixXd(sparse.topLeftCorner(r, r));
+}
+
+RunMatrix run_matrix(Eigen::MatrixXd P, const Eigen::VectorXd& row_scale,
+                     const Eigen::VectorXd& col_scale) {
+  RunMatrix out;
+  if (P.rows() >= kSparseMinSize) {
+    SparsePropagator sp = sparse_propagator(P, row_scale, col_scale);
+    if (static_cast<double>(sp.P.nonZeros()) <=
+        kSparsePropagatorDensity * static_cast<double>(P.rows()) * static_cast<double>(P.cols())) {
+      out.sparse = std::move(sp.P);
+      out.is_sparse = true;
+      return out;
+    }
+  }
+  out.dense = std::move(P);
+  return out;
 }
 
 }  // namespace ringdown::solver

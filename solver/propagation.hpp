@@ -16,7 +16,13 @@
 //    O(nnz) each; the engine compares action_flops and
 //    dense_propagator_flops);
 //  - fixed-size Eigen kernels for the matrix-vector product when the
-//    augmented size is <= 8.
+//    augmented size is <= 8;
+//  - a truncated sparse propagator: the dense expm(M h) with the entries
+//    dropped that are below the unit roundoff of their row's norm (in
+//    balanced coordinates), kept in compressed rows when that leaves few of
+//    them (long ladders: the propagator of a short step decays quickly away
+//    from the diagonal). RunMatrix holds whichever of dense and truncated
+//    sparse is cheaper to apply.
 // The dense propagator comes from one function, dense_propagator(): the
 // stiff-accurate block method of STIFF.md when solver/stiff_exponential.hpp
 // is present, else Eigen's scaling-and-squaring Pade expm (Higham 2005)
@@ -91,5 +97,45 @@ void expm_action(const AugmentedSystem& sys, double h, const TaylorPlan& plan,
 
 // y = P x with fixed-size kernels for sizes <= 8 (y and x must not alias).
 void multiply(const Eigen::MatrixXd& P, const Eigen::VectorXd& x, Eigen::VectorXd& y);
+
+// Largest augmented size stepped by fixed-size kernels.
+constexpr Eigen::Index kFixedKernelMax = 8;
+
+// A propagator with its negligible entries dropped, in compressed rows.
+// Entry (i, j) is dropped when |Pb_ij| <= u ||Pb_i,:||_1 / n, where Pb = Dr^-1 P Dc is the
+// propagator in balanced coordinates (Dr, Dc: the balancing scales of the systems it maps
+// to and from) and u the unit roundoff: the dropped part of each row then sums to at most
+// u times that row's norm, so one step's truncation error in row i is at most
+// u ||Pb_i,:||_1 ||x_b||_inf, below the bound n u ||Pb_i,:||_1 ||x_b||_inf on the rounding
+// error of the dense product itself (Higham, Accuracy and Stability of Numerical
+// Algorithms, 2nd ed. 2002, sec. 3.5).
+struct SparsePropagator {
+  Eigen::SparseMatrix<double, Eigen::RowMajor> P;
+  double dropped = 0;  // largest dropped row sum relative to its row's norm (balanced)
+};
+SparsePropagator sparse_propagator(const Eigen::MatrixXd& P, const Eigen::VectorXd& row_scale,
+                                   const Eigen::VectorXd& col_scale);
+
+// A propagator as applied in the run: dense, or truncated sparse when that keeps at most
+// kSparsePropagatorDensity of the entries (a compressed-row product costs about 3x a dense
+// one per entry; measured on this machine class).
+constexpr double kSparsePropagatorDensity = 0.25;
+struct RunMatrix {
+  Eigen::MatrixXd dense;  // empty when sparse
+  Eigen::SparseMatrix<double, Eigen::RowMajor> sparse;
+  bool is_sparse = false;
+  bool empty() const { return !is_sparse && dense.size() == 0; }
+  Eigen::Index rows() const { return is_sparse ? sparse.rows() : dense.rows(); }
+  Eigen::Index cols() const { return is_sparse ? sparse.cols() : dense.cols(); }
+  double bytes() const;
+  // y = P x (y and x must not alias; y is resized).
+  void apply(const Eigen::VectorXd& x, Eigen::VectorXd& y) const;
+  // The leading r x r block as a dense matrix.
+  Eigen::MatrixXd top_left(Eigen::Index r) const;
+};
+// Truncated sparse when the matrix is at least kSparseMinSize rows and the truncation keeps
+// at most kSparsePropagatorDensity of it, else dense (fixed-size kernels apply to <= 8).
+RunMatrix run_matrix(Eigen::MatrixXd P, const Eigen::VectorXd& row_scale,
+                     const Eigen::VectorXd& col_scale);
 
 }  // namespace ringdown::solver
