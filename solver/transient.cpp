@@ -278,6 +278,10 @@ class Engine {
   double last_h_ = -1;                     // the length last_key_ was made from
   const AugmentedSystem* last_sys_ = nullptr;  // its system (segments_ is node-based too)
   std::map<std::string, Composite> composites_;
+  // Phi(h) = e^{A h}, the state block of every propagator of one configuration and step
+  // length whatever the input structure: a second structure's propagator for that length
+  // needs only its q input columns (actions on unit vectors), not a new dense expm.
+  std::map<std::pair<int, long long>, Eigen::MatrixXd> state_blocks_;
   Eigen::Index states_ = 0;  // r, the same in every configuration
 
   int config_ = -1;
@@ -882,17 +886,38 @@ void Engine::advance(double h, long uses_left) {
     if (cache_bytes_ + bytes > kCacheBytes) {
       last_entry_ = nullptr;
       cache_.clear();
+      state_blocks_.clear();
       cache_bytes_ = 0;
       entry = &cache_[key];
       entry->plan = plan_action(seg.sys, h);
     }
     Eigen::MatrixXd P;
-    try {
-      P = dense_propagator(seg.sys, h);
-    } catch (const std::exception& ex) {
-      throw NumericalFailure(std::string("the matrix exponential failed: ") + ex.what());
+    const Eigen::Index r = states_;
+    const auto block = state_blocks_.find({config_, key.length});
+    if (block != state_blocks_.end() && !stiff && seg.sys.use_sparse) {
+      // [[Phi, G], [0, W]]: Phi known, the input columns by actions on unit vectors. Only on
+      // large sparse systems, where a dense expm is costly; small ones keep the
+      // stiff-accurate propagator for every structure.
+      P = Eigen::MatrixXd::Zero(N, N);
+      P.topLeftCorner(r, r) = block->second;
+      Eigen::VectorXd v, y;
+      for (Eigen::Index j = r; j < N; ++j) {
+        v = Eigen::VectorXd::Unit(N, j);
+        expm_action(seg.sys, h, entry->plan, v, y, work1_, work2_);
+        P.col(j) = y;
+      }
+    } else {
+      try {
+        P = dense_propagator(seg.sys, h);
+      } catch (const std::exception& ex) {
+        throw NumericalFailure(std::string("the matrix exponential failed: ") + ex.what());
+      }
+      ++sum_.propagators_built;
+      if (P.allFinite()) {
+        state_blocks_.emplace(std::make_pair(config_, key.length), P.topLeftCorner(r, r));
+        cache_bytes_ += 8.0 * static_cast<double>(r * r);
+      }
     }
-    ++sum_.propagators_built;
     if (!P.allFinite())
       throw NumericalFailure("the propagator over " + fmt_num(h, "s") + " is not finite");
     entry->P = run_matrix(std::move(P), seg.sys.scale, seg.sys.scale);
@@ -1132,14 +1157,16 @@ void Engine::interval_with_corners(double t, double tn, std::size_t e_begin, std
   Eigen::MatrixXd P = Eigen::MatrixXd::Zero(r + q1, r + q0);
   // State block: Phi(every), from the full-step propagator of the start.
   {
-    const PropagatorKey full{config_, s_start, std::llround(opt_.every / instant_)};
-    auto it = cache_.find(full);
-    if (it != cache_.end() && !it->second.P.empty()) {
-      P.topLeftCorner(r, r) = it->second.P.top_left(r);
+    const std::pair<int, long long> full{config_, std::llround(opt_.every / instant_)};
+    auto it = state_blocks_.find(full);
+    if (it != state_blocks_.end()) {
+      P.topLeftCorner(r, r) = it->second;
     } else {
       Segment& seg = segment(config_, s_start);
       P.topLeftCorner(r, r) = dense_propagator(seg.sys, opt_.every).topLeftCorner(r, r);
       ++sum_.propagators_built;
+      state_blocks_.emplace(full, P.topLeftCorner(r, r));
+      cache_bytes_ += 8.0 * static_cast<double>(r * r);
     }
   }
   Eigen::VectorXd v, y;
