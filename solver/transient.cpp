@@ -1284,26 +1284,36 @@ long Engine::steady_fixed(long k, long n_samples, double next_event) {
   Eigen::Map<const Eigen::Matrix<double, Eigen::Dynamic, N, Eigen::RowMajor>> O(direct.data(), nv, N);
   Eigen::Map<Eigen::VectorXd> values(values_.data(), nv);
   Eigen::Matrix<double, N, 1> x = X_, y;
-  long steps = 0;
-  for (long j = k; j < n_samples; ++j) {
-    const double tn = static_cast<double>(j + 1) * opt_.every;
+  const bool progress = static_cast<bool>(opt_.progress);
+  long until_progress = (progress_every_ - (k + 1) % progress_every_) % progress_every_ + 1;
+  const double every = opt_.every;
+  long j = k;
+  for (; j < n_samples; ++j) {
+    const double tn = static_cast<double>(j + 1) * every;
     if (tn >= next_event) break;
     y.noalias() = P * x;
     x = y;
-    values.noalias() = O * x;
-    for (Eigen::Index v = 0; v < nv; ++v)
-      if (!std::isfinite(values(v))) {
-        X_ = x;
-        not_finite(tn);
-      }
+    // Each value a fixed-size dot product; 0 * v summed is 0 when every value is finite
+    // and NaN otherwise (one test per sample instead of one per value).
+    double nan_probe = 0;
+    for (Eigen::Index v = 0; v < nv; ++v) {
+      const double value = O.row(v).dot(x);
+      values(v) = value;
+      nan_probe += 0.0 * value;
+    }
+    if (nan_probe != 0.0) {  // true for NaN
+      X_ = x;
+      not_finite(tn);
+    }
     sink_(tn, values_.data(), values_.size());
     ++sum_.samples;
-    ++steps;
-    if (opt_.progress && (j + 1) % progress_every_ == 0)
+    if (progress && --until_progress == 0) {
+      until_progress = progress_every_;
       opt_.progress(static_cast<double>(j + 1) / static_cast<double>(n_samples));
+    }
   }
   X_ = x;
-  return steps;
+  return j - k;
 }
 
 TransientSummary Engine::run() {
