@@ -1278,14 +1278,19 @@ long Engine::steady_run(long k, long n_samples, double next_event) {
 // output map as fixed-size Eigen objects (no loop bounds or allocation per sample).
 template <int N>
 long Engine::steady_fixed(long k, long n_samples, double next_event) {
+  // Everything the loop reads is local: the sink is opaque to the compiler, so members would
+  // be reloaded after every call.
   const Eigen::Matrix<double, N, N> P = last_entry_->P.dense;
   const auto& direct = current_->direct;
   const Eigen::Index nv = direct.rows();
-  Eigen::Map<const Eigen::Matrix<double, Eigen::Dynamic, N, Eigen::RowMajor>> O(direct.data(), nv, N);
-  Eigen::Map<Eigen::VectorXd> values(values_.data(), nv);
+  const Eigen::Matrix<double, Eigen::Dynamic, N, Eigen::RowMajor> O = direct;
+  double* const values = values_.data();
+  const std::size_t count = values_.size();
+  const SampleSink& sink = sink_;
   Eigen::Matrix<double, N, 1> x = X_, y;
   const bool progress = static_cast<bool>(opt_.progress);
-  long until_progress = (progress_every_ - (k + 1) % progress_every_) % progress_every_ + 1;
+  const long progress_every = progress_every_;
+  long until_progress = (progress_every - (k + 1) % progress_every) % progress_every + 1;
   const double every = opt_.every;
   long j = k;
   for (; j < n_samples; ++j) {
@@ -1298,20 +1303,21 @@ long Engine::steady_fixed(long k, long n_samples, double next_event) {
     double nan_probe = 0;
     for (Eigen::Index v = 0; v < nv; ++v) {
       const double value = O.row(v).dot(x);
-      values(v) = value;
+      values[v] = value;
       nan_probe += 0.0 * value;
     }
     if (nan_probe != 0.0) {  // true for NaN
       X_ = x;
+      sum_.samples += static_cast<std::size_t>(j - k);
       not_finite(tn);
     }
-    sink_(tn, values_.data(), values_.size());
-    ++sum_.samples;
+    sink(tn, values, count);
     if (progress && --until_progress == 0) {
-      until_progress = progress_every_;
+      until_progress = progress_every;
       opt_.progress(static_cast<double>(j + 1) / static_cast<double>(n_samples));
     }
   }
+  sum_.samples += static_cast<std::size_t>(j - k);
   X_ = x;
   return j - k;
 }
