@@ -270,13 +270,62 @@ SparsePropagator sparse_propagator(const Eigen::MatrixXd& P, const Eigen::Vector
 
 double RunMatrix::bytes() const {
   if (!is_sparse) return 8.0 * static_cast<double>(dense.size());
-  return 12.0 * static_cast<double>(sparse.nonZeros()) + 8.0 * static_cast<double>(sparse.rows());
+  return 12.0 * static_cast<double>(sparse.nonZeros()) + 8.0 * static_cast<double>(sparse.rows()) +
+         8.0 * static_cast<double>(run_values.size()) + 8.0 * static_cast<double>(run_col.size());
 }
+
+namespace {
+
+void build_runs(RunMatrix& m) {
+  const auto& S = m.sparse;
+  m.row_runs.assign(1, 0);
+  m.run_col.clear();
+  m.run_len.clear();
+  m.run_values.clear();
+  for (int i = 0; i < S.outerSize(); ++i) {
+    int end = -1;  // one past the last column of the current run of this row
+    for (Eigen::SparseMatrix<double, Eigen::RowMajor>::InnerIterator it(S, i); it; ++it) {
+      const int col = static_cast<int>(it.col());
+      if (end >= 0 && col - end <= kRunGap) {
+        for (; end < col; ++end) {  // fill the gap
+          m.run_values.push_back(0.0);
+          ++m.run_len.back();
+        }
+        ++m.run_len.back();
+      } else {
+        m.run_col.push_back(col);
+        m.run_len.push_back(1);
+      }
+      m.run_values.push_back(it.value());
+      end = col + 1;
+    }
+    m.row_runs.push_back(static_cast<int>(m.run_col.size()));
+  }
+}
+
+}  // namespace
 
 void RunMatrix::apply(const Eigen::VectorXd& x, Eigen::VectorXd& y) const {
   if (is_sparse) {
-    y.resize(sparse.rows());
-    y.noalias() = sparse * x;
+    const Eigen::Index rows = static_cast<Eigen::Index>(row_runs.size()) - 1;
+    y.resize(rows);
+    const double* v = run_values.data();
+    const double* xs = x.data();
+    for (Eigen::Index i = 0; i < rows; ++i) {
+      double a0 = 0, a1 = 0;
+      for (int r = row_runs[static_cast<std::size_t>(i)]; r < row_runs[static_cast<std::size_t>(i) + 1]; ++r) {
+        const double* xp = xs + run_col[static_cast<std::size_t>(r)];
+        const int len = run_len[static_cast<std::size_t>(r)];
+        int q = 0;
+        for (; q + 1 < len; q += 2) {
+          a0 += v[q] * xp[q];
+          a1 += v[q + 1] * xp[q + 1];
+        }
+        if (q < len) a0 += v[q] * xp[q];
+        v += len;
+      }
+      y(i) = a0 + a1;
+    }
   } else if (dense.rows() == dense.cols()) {
     y.resize(dense.rows());
     multiply(dense, x, y);
@@ -300,6 +349,7 @@ RunMatrix run_matrix(Eigen::MatrixXd P, const Eigen::VectorXd& row_scale,
         kSparsePropagatorDensity * static_cast<double>(P.rows()) * static_cast<double>(P.cols())) {
       out.sparse = std::move(sp.P);
       out.is_sparse = true;
+      build_runs(out);
       return out;
     }
   }

@@ -124,6 +124,13 @@ struct RunMatrix {
   Eigen::MatrixXd dense;  // empty when sparse
   Eigen::SparseMatrix<double, Eigen::RowMajor> sparse;
   bool is_sparse = false;
+  // The sparse matrix again as runs of consecutive columns (what apply() uses): row i has
+  // runs row_runs[i] .. row_runs[i+1]-1, run k starts at column run_col[k] and holds
+  // run_len[k] values, packed in run_values (gaps of up to kRunGap zeros are filled in, so
+  // a banded propagator is a few contiguous dot products per row, with no column index per
+  // entry).
+  std::vector<int> row_runs, run_col, run_len;
+  std::vector<double> run_values;
   bool empty() const { return !is_sparse && dense.size() == 0; }
   Eigen::Index rows() const { return is_sparse ? sparse.rows() : dense.rows(); }
   Eigen::Index cols() const { return is_sparse ? sparse.cols() : dense.cols(); }
@@ -133,6 +140,7 @@ struct RunMatrix {
   // The leading r x r block as a dense matrix.
   Eigen::MatrixXd top_left(Eigen::Index r) const;
 };
+constexpr int kRunGap = 2;
 // Truncated sparse when the matrix is at least kSparseMinSize rows and the truncation keeps
 // at most kSparsePropagatorDensity of it, else dense (fixed-size kernels apply to <= 8).
 RunMatrix run_matrix(Eigen::MatrixXd P, const Eigen::VectorXd& row_scale,
