@@ -64,10 +64,6 @@ constexpr int kDenseAfterUses = 3;
 // than this many matrix-vector products per state (stiff steps: the Taylor
 // action needs ~||M h|| products, a dense expm ~ (10 + log2 ||M h||) n^3).
 constexpr double kActionLimitPerState = 10.0;
-// A dense expm's flops (matrix products and an LU, blocked) run about this many times
-// faster than the action's (compressed-row products and vector updates): measured on this
-// machine class, 4.8 against 1.5 GFlop/s on the 200-state ladder of bench/.
-constexpr double kDenseFlopSpeed = 3.0;
 // Cache of dense propagators: cleared when it would exceed this many bytes
 // (memory stays O(n^2) with a constant that fits a workstation).
 constexpr double kCacheBytes = 512.0 * 1024 * 1024;
@@ -864,15 +860,17 @@ void Engine::advance(double h, long uses_left) {
   const long action = entry->plan.products();
   const bool stiff = static_cast<double>(action) > kActionLimitPerState * static_cast<double>(N);
   bool dense = entry->uses >= kDenseAfterUses || stiff;
+  // A large sparse system, not stiff here: its propagator comes from the action on the N
+  // unit vectors at once (propagator_by_action, about N actions' work, far below a dense
+  // expm), and is kept only when it truncates to a product cheaper than one action. Built
+  // when the run has at least N more such steps, so it costs at most what stepping by the
+  // action would; otherwise, or when it does not truncate, the action for good.
+  bool by_action = false;
   if (dense && !stiff && seg.sys.use_sparse) {
     // Expected further uses: what the caller says, or as many as so far.
     const double uses = static_cast<double>(std::max<long>(uses_left, entry->uses));
-    // A dense propagator of a sparse system is applied truncated (run_matrix), at most
-    // kSparsePropagatorDensity of a dense product when that pays.
-    const double n2 =
-        2.0 * static_cast<double>(N) * static_cast<double>(N) * kSparsePropagatorDensity;
-    if (uses * action_flops(seg.sys, entry->plan) <
-        dense_propagator_flops(seg.sys, h) / kDenseFlopSpeed + uses * n2) {
+    by_action = uses >= static_cast<double>(N);
+    if (!by_action) {
       dense = false;
       entry->action = true;
       last_key_ = key;
@@ -906,6 +904,9 @@ void Engine::advance(double h, long uses_left) {
         expm_action(seg.sys, h, entry->plan, v, y, work1_, work2_);
         P.col(j) = y;
       }
+    } else if (by_action) {
+      P = propagator_by_action(seg.sys, h, entry->plan);
+      ++sum_.propagators_built;
     } else {
       try {
         P = dense_propagator(seg.sys, h);
@@ -920,7 +921,23 @@ void Engine::advance(double h, long uses_left) {
     }
     if (!P.allFinite())
       throw NumericalFailure("the propagator over " + fmt_num(h, "s") + " is not finite");
+    if (by_action && P.allFinite()) {
+      state_blocks_.emplace(std::make_pair(config_, key.length), P.topLeftCorner(r, r));
+      cache_bytes_ += 8.0 * static_cast<double>(r * r);
+    }
     entry->P = run_matrix(std::move(P), seg.sys.scale, seg.sys.scale);
+    if (by_action && !(entry->P.is_sparse && 2.0 * static_cast<double>(entry->P.run_values.size()) <
+                                                 action_flops(seg.sys, entry->plan))) {
+      entry->P = RunMatrix();  // does not pay: the action for good
+      entry->action = true;
+      last_key_ = key;
+      last_entry_ = entry;
+      last_h_ = h;
+      last_sys_ = &seg.sys;
+      expm_action(seg.sys, h, entry->plan, X_, Y_, work1_, work2_);
+      X_.swap(Y_);
+      return;
+    }
     if (entry->P.is_sparse) ++sum_.sparse_propagators;
     cache_bytes_ += entry->P.bytes();
     entry->P.apply(X_, Y_);
