@@ -85,11 +85,11 @@ AugmentedSystem make_augmented(const Eigen::MatrixXd& A, const Eigen::MatrixXd& 
 Eigen::MatrixXd dense_propagator(const AugmentedSystem& sys, double h);
 
 // expm(M h) as the action on the N unit vectors at once (the Taylor method of expm_action
-// with the plan of plan_action(sys, h), on an N x N block): m s sparse-times-dense products,
+// on an N x N block, unshifted: see propagation.cpp): m s sparse-times-dense products,
 // about N actions' work, far below a dense expm on a large sparse system. For steps that are
 // not stiff (the engine's kActionLimitPerState), where the action is what the engine would
 // otherwise step with.
-Eigen::MatrixXd propagator_by_action(const AugmentedSystem& sys, double h, const TaylorPlan& plan);
+Eigen::MatrixXd propagator_by_action(const AugmentedSystem& sys, double h);
 
 // Number of matrix-vector products expm_action would take for length h.
 long expm_action_cost(const AugmentedSystem& sys, double h);

@@ -905,7 +905,7 @@ void Engine::advance(double h, long uses_left) {
         P.col(j) = y;
       }
     } else if (by_action) {
-      P = propagator_by_action(seg.sys, h, entry->plan);
+      P = propagator_by_action(seg.sys, h);
       ++sum_.propagators_built;
     } else {
       try {
