@@ -82,7 +82,7 @@ def ladder(sections, every_ns, samples):
 def cases():
     return {
         "snubber4": snubber(),
-        "snubber4_dc": snubber(100_000, dc=True),
+        "snubber4_dc": snubber(1_000_000, dc=True),
         "ladder200": ladder(100, 2, 10_000),
         "ladder1000": ladder(500, 10, 2000),
     }
@@ -227,6 +227,18 @@ def timed(f):
     return time.perf_counter() - t0, r
 
 
+# lsim is timed as the engine is: the best of this many runs (engine_bench --reps 3).
+LSIM_REPS = 3
+
+
+def best_of(f, reps=LSIM_REPS):
+    best, r = timed(f)
+    for _ in range(reps - 1):
+        t, r = timed(f)
+        best = min(best, t)
+    return best, r
+
+
 def compare(d):
     eng = read_kv(os.path.join(d, "engine.txt"))
     csvt = read_kv(os.path.join(d, "csv.txt"))
@@ -246,7 +258,7 @@ def compare(d):
     ssm = model(c, precise=True)
     U = inputs(c)
     T = times(c)
-    t_lsim, (_, y_lsim, _) = timed(lambda: scipy.signal.lsim((ss.A, ss.B, ss.C, ss.D), U, T, X0=ss.x0))
+    t_lsim, (_, y_lsim, _) = best_of(lambda: scipy.signal.lsim((ss.A, ss.B, ss.C, ss.D), U, T, X0=ss.x0))
     k_radau = min(RADAU_SAMPLES, c.samples)
     t_radau, y_radau = timed(lambda: radau_snubber(c, ss, U, k_radau))
     t_radau *= c.samples / k_radau
@@ -256,7 +268,7 @@ def compare(d):
     y_ring = read_dump(d, "snubber4", len(c.records))
     e_ring = rel_err(y_ring, y_exact) if y_ring is not None and y_ring.shape == y_exact.shape else None
     er = engine_s("snubber4")
-    rows.append(("(a) snubber, 4 states, 1e6 samples: vs scipy.signal.lsim",
+    rows.append(("(a) snubber, 4 states, 1e6 samples: vs scipy.signal.lsim (best of 3 each)",
                  f(er) if er else "n/a", f(t_lsim), ratio(t_lsim, er), ">= 100x"))
     radau_note = "" if k_radau == c.samples else f", first {k_radau} samples, time x{c.samples / k_radau:g}"
     rows.append((f"(a) same: vs solve_ivp Radau rtol=1e-8 (restarted at corners{radau_note})",
@@ -274,16 +286,18 @@ def compare(d):
         c = cs[name]
         t_model, ss = timed(lambda: model(c))
         U, T = inputs(c), times(c)
-        t_l, (_, y_l, _) = timed(lambda: scipy.signal.lsim((ss.A, ss.B, ss.C, ss.D), U, T, X0=ss.x0))
+        t_l, (_, y_l, _) = best_of(lambda: scipy.signal.lsim((ss.A, ss.B, ss.C, ss.D), U, T, X0=ss.x0),
+                                   LSIM_REPS if name == "ladder200" else 1)
         er = engine_s(name)
-        rows.append((label + ": vs scipy.signal.lsim", f(er) if er else "n/a", f(t_l),
+        reps = "best of 3 each" if name == "ladder200" else "one run each"
+        rows.append((label + f": vs scipy.signal.lsim ({reps})", f(er) if er else "n/a", f(t_l),
                      ratio(t_l, er), target))
         y_r = read_dump(d, name, len(c.records))
         if y_r is not None and y_r.shape == np.shape(y_l):
             rows.append((f"    {name}: ringdown vs lsim agreement, of peak", "", "",
                          f"{rel_err(y_r, y_l):.1e}", "(info)"))
     # (d) per-sample propagation against a bare dense matrix-vector product
-    for name, n, kind, target in (("snubber4_dc", 4, "fixed", "<= 2x"),
+    for name, n, kind, target in (("snubber4_dc", 5, "fixed", "<= 2x"),
                                   ("ladder200", 200, "dynamic", "<= 1.5x"),
                                   ("ladder1000", 1000, "dynamic", "<= 1.5x")):
         key = f"matvec{n}"

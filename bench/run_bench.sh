@@ -65,7 +65,7 @@ echo "engine timings ..." >&2
   "$BENCH" run "$WORK/ladder200.rlc" --reps 3 --marginal --dump "$WORK/ladder200.bin"
   "$BENCH" run "$WORK/ladder200_pulse.rlc" --reps 3
   "$BENCH" run "$WORK/ladder1000.rlc" --reps 1 --marginal --dump "$WORK/ladder1000.bin"
-  "$BENCH" matvec 4 --fixed
+  "$BENCH" matvec 5 --fixed   # snubber4_dc: 4 states + the unit input state
   "$BENCH" matvec 200
   "$BENCH" matvec 1000
 } > "$WORK/engine.txt"

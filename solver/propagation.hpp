@@ -16,7 +16,13 @@
 //    O(nnz) each; the engine compares action_flops and
 //    dense_propagator_flops);
 //  - fixed-size Eigen kernels for the matrix-vector product when the
-//    augmented size is <= 8.
+//    augmented size is <= 8;
+//  - a truncated sparse propagator: the dense expm(M h) with the entries
+//    dropped that are below the unit roundoff of their row's norm (in
+//    balanced coordinates), kept in compressed rows when that leaves few of
+//    them (long ladders: the propagator of a short step decays quickly away
+//    from the diagonal). RunMatrix holds whichever of dense and truncated
+//    sparse is cheaper to apply.
 // The dense propagator comes from one function, dense_propagator(): the
 // stiff-accurate block method of STIFF.md when solver/stiff_exponential.hpp
 // is present, else Eigen's scaling-and-squaring Pade expm (Higham 2005)
@@ -78,6 +84,13 @@ AugmentedSystem make_augmented(const Eigen::MatrixXd& A, const Eigen::MatrixXd& 
 // expm(M h), through the best available method (see the top of this file).
 Eigen::MatrixXd dense_propagator(const AugmentedSystem& sys, double h);
 
+// expm(M h) as the action on the N unit vectors at once (the Taylor method of expm_action
+// on an N x N block, unshifted: see propagation.cpp): m s sparse-times-dense products,
+// about N actions' work, far below a dense expm on a large sparse system. For steps that are
+// not stiff (the engine's kActionLimitPerState), where the action is what the engine would
+// otherwise step with.
+Eigen::MatrixXd propagator_by_action(const AugmentedSystem& sys, double h);
+
 // Number of matrix-vector products expm_action would take for length h.
 long expm_action_cost(const AugmentedSystem& sys, double h);
 
@@ -91,5 +104,53 @@ void expm_action(const AugmentedSystem& sys, double h, const TaylorPlan& plan,
 
 // y = P x with fixed-size kernels for sizes <= 8 (y and x must not alias).
 void multiply(const Eigen::MatrixXd& P, const Eigen::VectorXd& x, Eigen::VectorXd& y);
+
+// Largest augmented size stepped by fixed-size kernels.
+constexpr Eigen::Index kFixedKernelMax = 8;
+
+// A propagator with its negligible entries dropped, in compressed rows.
+// Entry (i, j) is dropped when |Pb_ij| <= u ||Pb_i,:||_1 / n, where Pb = Dr^-1 P Dc is the
+// propagator in balanced coordinates (Dr, Dc: the balancing scales of the systems it maps
+// to and from) and u the unit roundoff: the dropped part of each row then sums to at most
+// u times that row's norm, so one step's truncation error in row i is at most
+// u ||Pb_i,:||_1 ||x_b||_inf, below the bound n u ||Pb_i,:||_1 ||x_b||_inf on the rounding
+// error of the dense product itself (Higham, Accuracy and Stability of Numerical
+// Algorithms, 2nd ed. 2002, sec. 3.5).
+struct SparsePropagator {
+  Eigen::SparseMatrix<double, Eigen::RowMajor> P;
+  double dropped = 0;  // largest dropped row sum relative to its row's norm (balanced)
+};
+SparsePropagator sparse_propagator(const Eigen::MatrixXd& P, const Eigen::VectorXd& row_scale,
+                                   const Eigen::VectorXd& col_scale);
+
+// A propagator as applied in the run: dense, or truncated sparse when that keeps at most
+// kSparsePropagatorDensity of the entries (a compressed-row product costs about 3x a dense
+// one per entry; measured on this machine class).
+constexpr double kSparsePropagatorDensity = 0.25;
+struct RunMatrix {
+  Eigen::MatrixXd dense;  // empty when sparse
+  Eigen::SparseMatrix<double, Eigen::RowMajor> sparse;
+  bool is_sparse = false;
+  // The sparse matrix again as runs of consecutive columns (what apply() uses): row i has
+  // runs row_runs[i] .. row_runs[i+1]-1, run k starts at column run_col[k] and holds
+  // run_len[k] values, packed in run_values (gaps of up to kRunGap zeros are filled in, so
+  // a banded propagator is a few contiguous dot products per row, with no column index per
+  // entry).
+  std::vector<int> row_runs, run_col, run_len;
+  std::vector<double> run_values;
+  bool empty() const { return !is_sparse && dense.size() == 0; }
+  Eigen::Index rows() const { return is_sparse ? sparse.rows() : dense.rows(); }
+  Eigen::Index cols() const { return is_sparse ? sparse.cols() : dense.cols(); }
+  double bytes() const;
+  // y = P x (y and x must not alias; y is resized).
+  void apply(const Eigen::VectorXd& x, Eigen::VectorXd& y) const;
+  // The leading r x r block as a dense matrix.
+  Eigen::MatrixXd top_left(Eigen::Index r) const;
+};
+constexpr int kRunGap = 2;
+// Truncated sparse when the matrix is at least kSparseMinSize rows and the truncation keeps
+// at most kSparsePropagatorDensity of it, else dense (fixed-size kernels apply to <= 8).
+RunMatrix run_matrix(Eigen::MatrixXd P, const Eigen::VectorXd& row_scale,
+                     const Eigen::VectorXd& col_scale);
 
 }  // namespace ringdown::solver

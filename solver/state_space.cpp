@@ -367,16 +367,30 @@ ReductionResult reduce(const mna::Descriptor& descriptor, const StatePartition& 
       }
       d(i) = 1.0 / std::sqrt(c);
     }
-    const Eigen::MatrixXd Cs = d.asDiagonal() * C11 * d.asDiagonal();
-    Eigen::PartialPivLU<Eigen::MatrixXd> luc(Cs);
-    if (!(luc.rcond() > kSingularRcond)) {
-      out.message = "the capacitance/inductance matrix is singular (coupling factors too close to 1?)";
-      out.unknowns = sel;
-      out.condition = 1.0 / luc.rcond();
-      return out;
+    // Diagonal C11 (no mutual inductance, a capacitor forest whose reduced matrix came out
+    // diagonal: the common case): A and B are row scalings, O(r^2), where the LU below
+    // costs O(r^3) (the whole set-up of a 1000-state ladder).
+    bool diagonal = true;
+    for (Eigen::Index j = 0; j < r && diagonal; ++j)
+      for (Eigen::Index i = 0; i < r && diagonal; ++i)
+        diagonal = i == j || C11(i, j) == 0.0;
+    if (diagonal) {
+      const Eigen::VectorXd inv = C11.diagonal().cwiseInverse();
+      s.A = -(inv.asDiagonal() * s.Gs);
+      s.B = inv.asDiagonal() * s.Bs;
+    } else {
+      const Eigen::MatrixXd Cs = d.asDiagonal() * C11 * d.asDiagonal();
+      Eigen::PartialPivLU<Eigen::MatrixXd> luc(Cs);
+      if (!(luc.rcond() > kSingularRcond)) {
+        out.message =
+            "the capacitance/inductance matrix is singular (coupling factors too close to 1?)";
+        out.unknowns = sel;
+        out.condition = 1.0 / luc.rcond();
+        return out;
+      }
+      s.A = -(d.asDiagonal() * luc.solve(d.asDiagonal() * s.Gs));
+      s.B = d.asDiagonal() * luc.solve(d.asDiagonal() * s.Bs);
     }
-    s.A = -(d.asDiagonal() * luc.solve(d.asDiagonal() * s.Gs));
-    s.B = d.asDiagonal() * luc.solve(d.asDiagonal() * s.Bs);
   } else {
     s.A.resize(0, 0);
     s.B.resize(0, m);

@@ -143,7 +143,7 @@ struct PropagatorKeyHash {
   }
 };
 struct PropagatorEntry {
-  Eigen::MatrixXd P;
+  RunMatrix P;          // dense, or truncated sparse (propagation.hpp); empty: not built
   int uses = 0;
   TaylorPlan plan;      // of the action for this length (m < 0: not computed yet)
   bool action = false;  // stepped by the action for good: cheaper than a dense expm here
@@ -159,7 +159,7 @@ struct Segment {
 };
 
 struct Composite {
-  Eigen::MatrixXd P;  // X(t + every) = P X(t); empty until built
+  RunMatrix P;  // X(t + every) = P X(t); empty until built
   int uses = 0;
   bool refused = false;  // stiff: stepped with dense propagators instead
 };
@@ -222,6 +222,11 @@ class Engine {
   bool steps_through_fitted(double t, double tn, std::size_t e_begin, std::size_t e_end,
                             const std::vector<Event>& events);
   void emit(double t);
+  void deliver(double t);  // the tail of emit: checks, checkpoint, sink
+  long steady_run(long k, long n_samples, double next_event);
+  template <int N>
+  long steady_fixed(long k, long n_samples, double next_event);
+  [[noreturn]] void not_finite(double t) const;
   void keep(double t, bool left_limit);  // dense output: a checkpoint of X_ now
   void modal_checks();
   std::vector<Event> build_events(double t_end);
@@ -269,6 +274,10 @@ class Engine {
   double last_h_ = -1;                     // the length last_key_ was made from
   const AugmentedSystem* last_sys_ = nullptr;  // its system (segments_ is node-based too)
   std::map<std::string, Composite> composites_;
+  // Phi(h) = e^{A h}, the state block of every propagator of one configuration and step
+  // length whatever the input structure: a second structure's propagator for that length
+  // needs only its q input columns (actions on unit vectors), not a new dense expm.
+  std::map<std::pair<int, long long>, Eigen::MatrixXd> state_blocks_;
   Eigen::Index states_ = 0;  // r, the same in every configuration
 
   int config_ = -1;
@@ -288,6 +297,7 @@ class Engine {
   int dense_last_id_ = -1;
   std::vector<std::vector<Instr>> extra_programs_;
   double bracket_step_ = 0;
+  long progress_every_ = 1;
 };
 
 bool Engine::check_inputs() {
@@ -456,8 +466,11 @@ int Engine::config_for(const mna::SwitchState& closed) {
   }
   // x = T x_s + D u,  x' = T (A x_s + B u) + D u'.
   const StateSpace& s = cfg.ss;
-  cfg.Px = Lx * s.T + Ldx * (s.T * s.A);
-  cfg.Pu = Lx * s.D + Ldx * (s.T * s.B) + Lu;
+  // (Ldx T) first: nb x n x r and nb x r x r, not n x r x r (a 1000-state ladder's T A
+  // cost more than the rest of its set-up).
+  const Eigen::MatrixXd LdxT = Ldx * s.T;
+  cfg.Px = Lx * s.T + LdxT * s.A;
+  cfg.Pu = Lx * s.D + LdxT * s.B + Lu;
   cfg.Pdu = Ldx * s.D;
   const int id = static_cast<int>(configs_.size());
   configs_.push_back(std::move(cfg));
@@ -805,8 +818,8 @@ void Engine::advance(double h, long uses_left) {
   // the key's rounding and the hash lookup.
   if (last_entry_ && h == last_h_ && last_key_.config == config_ &&
       last_key_.structure == structure_) {
-    if (last_entry_->P.size() > 0) {
-      multiply(last_entry_->P, X_, Y_);
+    if (!last_entry_->P.empty()) {
+      last_entry_->P.apply(X_, Y_);
     } else {
       expm_action(*last_sys_, h, last_entry_->plan, X_, Y_, work1_, work2_);
     }
@@ -821,12 +834,12 @@ void Engine::advance(double h, long uses_left) {
     auto it = cache_.find(key);
     if (it != cache_.end()) entry = &it->second;
   }
-  if (entry && entry->P.size() > 0) {
+  if (entry && !entry->P.empty()) {
     last_key_ = key;
     last_entry_ = entry;
     last_h_ = h;
     last_sys_ = &segment(config_, structure_).sys;
-    multiply(entry->P, X_, Y_);
+    entry->P.apply(X_, Y_);
     X_.swap(Y_);
     return;
   }
@@ -847,12 +860,17 @@ void Engine::advance(double h, long uses_left) {
   const long action = entry->plan.products();
   const bool stiff = static_cast<double>(action) > kActionLimitPerState * static_cast<double>(N);
   bool dense = entry->uses >= kDenseAfterUses || stiff;
+  // A large sparse system, not stiff here: its propagator comes from the action on the N
+  // unit vectors at once (propagator_by_action, about N actions' work, far below a dense
+  // expm), and is kept only when it truncates to a product cheaper than one action. Built
+  // when the run has at least N more such steps, so it costs at most what stepping by the
+  // action would; otherwise, or when it does not truncate, the action for good.
+  bool by_action = false;
   if (dense && !stiff && seg.sys.use_sparse) {
     // Expected further uses: what the caller says, or as many as so far.
     const double uses = static_cast<double>(std::max<long>(uses_left, entry->uses));
-    const double n2 = 2.0 * static_cast<double>(N) * static_cast<double>(N);
-    if (uses * action_flops(seg.sys, entry->plan) <
-        dense_propagator_flops(seg.sys, h) + uses * n2) {
+    by_action = uses >= static_cast<double>(N);
+    if (!by_action) {
       dense = false;
       entry->action = true;
       last_key_ = key;
@@ -862,26 +880,67 @@ void Engine::advance(double h, long uses_left) {
     }
   }
   if (dense) {
-    const double bytes = 8.0 * static_cast<double>(N * N);
+    const double bytes = 8.0 * static_cast<double>(N * N);  // at most (truncation shrinks it)
     if (cache_bytes_ + bytes > kCacheBytes) {
       last_entry_ = nullptr;
       cache_.clear();
+      state_blocks_.clear();
       cache_bytes_ = 0;
       entry = &cache_[key];
       entry->plan = plan_action(seg.sys, h);
     }
     Eigen::MatrixXd P;
-    try {
-      P = dense_propagator(seg.sys, h);
-    } catch (const std::exception& ex) {
-      throw NumericalFailure(std::string("the matrix exponential failed: ") + ex.what());
+    const Eigen::Index r = states_;
+    const auto block = state_blocks_.find({config_, key.length});
+    if (block != state_blocks_.end() && !stiff && seg.sys.use_sparse) {
+      // [[Phi, G], [0, W]]: Phi known, the input columns by actions on unit vectors. Only on
+      // large sparse systems, where a dense expm is costly; small ones keep the
+      // stiff-accurate propagator for every structure.
+      P = Eigen::MatrixXd::Zero(N, N);
+      P.topLeftCorner(r, r) = block->second;
+      Eigen::VectorXd v, y;
+      for (Eigen::Index j = r; j < N; ++j) {
+        v = Eigen::VectorXd::Unit(N, j);
+        expm_action(seg.sys, h, entry->plan, v, y, work1_, work2_);
+        P.col(j) = y;
+      }
+    } else if (by_action) {
+      P = propagator_by_action(seg.sys, h);
+      ++sum_.propagators_built;
+    } else {
+      try {
+        P = dense_propagator(seg.sys, h);
+      } catch (const std::exception& ex) {
+        throw NumericalFailure(std::string("the matrix exponential failed: ") + ex.what());
+      }
+      ++sum_.propagators_built;
+      if (P.allFinite()) {
+        state_blocks_.emplace(std::make_pair(config_, key.length), P.topLeftCorner(r, r));
+        cache_bytes_ += 8.0 * static_cast<double>(r * r);
+      }
     }
-    ++sum_.propagators_built;
     if (!P.allFinite())
       throw NumericalFailure("the propagator over " + fmt_num(h, "s") + " is not finite");
-    entry->P = std::move(P);
-    cache_bytes_ += bytes;
-    multiply(entry->P, X_, Y_);
+    if (by_action && P.allFinite()) {
+      state_blocks_.emplace(std::make_pair(config_, key.length), P.topLeftCorner(r, r));
+      cache_bytes_ += 8.0 * static_cast<double>(r * r);
+    }
+    entry->P = run_matrix(std::move(P), seg.sys.scale, seg.sys.scale);
+    if (by_action && !(entry->P.is_sparse && 2.0 * static_cast<double>(entry->P.run_values.size()) <
+                                                 action_flops(seg.sys, entry->plan))) {
+      entry->P = RunMatrix();  // does not pay: the action for good
+      entry->action = true;
+      last_key_ = key;
+      last_entry_ = entry;
+      last_h_ = h;
+      last_sys_ = &seg.sys;
+      expm_action(seg.sys, h, entry->plan, X_, Y_, work1_, work2_);
+      X_.swap(Y_);
+      return;
+    }
+    if (entry->P.is_sparse) ++sum_.sparse_propagators;
+    cache_bytes_ += entry->P.bytes();
+    entry->P.apply(X_, Y_);
   } else {
     expm_action(seg.sys, h, entry->plan, X_, Y_, work1_, work2_);
   }
@@ -1085,14 +1144,13 @@ void Engine::interval_with_corners(double t, double tn, std::size_t e_begin, std
     structure_ = steps.back().next;
   };
   auto found = composites_.find(key);
-  if (found != composites_.end() && found->second.P.size() > 0) {
+  if (found != composites_.end() && !found->second.P.empty()) {
     if (dense_) {  // the corners' states for the trajectory; the sample from the matrix
       const Eigen::VectorXd start = X_;
       step_directly();
       X_ = start;
     }
-    Y_.resize(found->second.P.rows());
-    Y_.noalias() = found->second.P * X_;
+    found->second.P.apply(X_, Y_);
     X_.swap(Y_);
     return;
   }
@@ -1116,14 +1174,16 @@ void Engine::interval_with_corners(double t, double tn, std::size_t e_begin, std
   Eigen::MatrixXd P = Eigen::MatrixXd::Zero(r + q1, r + q0);
   // State block: Phi(every), from the full-step propagator of the start.
   {
-    const PropagatorKey full{config_, s_start, std::llround(opt_.every / instant_)};
-    auto it = cache_.find(full);
-    if (it != cache_.end() && it->second.P.size() > 0) {
-      P.topLeftCorner(r, r) = it->second.P.topLeftCorner(r, r);
+    const std::pair<int, long long> full{config_, std::llround(opt_.every / instant_)};
+    auto it = state_blocks_.find(full);
+    if (it != state_blocks_.end()) {
+      P.topLeftCorner(r, r) = it->second;
     } else {
       Segment& seg = segment(config_, s_start);
       P.topLeftCorner(r, r) = dense_propagator(seg.sys, opt_.every).topLeftCorner(r, r);
       ++sum_.propagators_built;
+      state_blocks_.emplace(full, P.topLeftCorner(r, r));
+      cache_bytes_ += 8.0 * static_cast<double>(r * r);
     }
   }
   Eigen::VectorXd v, y;
@@ -1147,7 +1207,9 @@ void Engine::interval_with_corners(double t, double tn, std::size_t e_begin, std
     comp.refused = true;
     return;
   }
-  comp.P = std::move(P);
+  comp.P = run_matrix(std::move(P), segment(config_, structure_).sys.scale,
+                      segment(config_, s_start).sys.scale);
+  if (comp.P.is_sparse) ++sum_.sparse_propagators;
 }
 
 void Engine::emit(double t) {
@@ -1169,18 +1231,112 @@ void Engine::emit(double t) {
     for (std::size_t s = 0; s < programs_.size(); ++s)
       values_[s] = run_program(programs_[s], base_.data(), stack_.data());
   }
-  for (double v : values_) {
-    if (!std::isfinite(v)) {
-      const Configuration& cfg = configs_[static_cast<std::size_t>(config_)];
-      std::string msg = "the solution is not finite at t = " + fmt_num(t, "s");
-      if (active_) msg += " (the network is unstable and has grown beyond the range of numbers)";
-      if (cfg.condition > 0) msg += "; condition estimate of the algebraic part " + fmt_num(cfg.condition, "");
-      throw NumericalFailure(msg);
-    }
-  }
+  deliver(t);
+}
+
+void Engine::not_finite(double t) const {
+  const Configuration& cfg = configs_[static_cast<std::size_t>(config_)];
+  std::string msg = "the solution is not finite at t = " + fmt_num(t, "s");
+  if (active_) msg += " (the network is unstable and has grown beyond the range of numbers)";
+  if (cfg.condition > 0) msg += "; condition estimate of the algebraic part " + fmt_num(cfg.condition, "");
+  throw NumericalFailure(msg);
+}
+
+void Engine::deliver(double t) {
+  for (double v : values_)
+    if (!std::isfinite(v)) not_finite(t);
   if (dense_ && sum_.samples % static_cast<std::size_t>(dense_stride_) == 0) keep(t, false);
   sink_(t, values_.data(), values_.size());
   ++sum_.samples;
+}
+
+// Full output steps from sample k on while the next event lies beyond the next sample: the
+// steady stretch between corners, X <- Phi X and the output map, without advance()'s
+// lookups. Needs the propagator of the full step as a matrix (advance() just used it), the
+// direct output map, and no dense output (which keeps checkpoints between samples). Returns
+// the number of steps taken (0: not applicable).
+long Engine::steady_run(long k, long n_samples, double next_event) {
+  if (dense_ || !last_entry_ || last_entry_->P.empty() || last_h_ != opt_.every ||
+      last_key_.config != config_ || last_key_.structure != structure_)
+    return 0;
+  if (!current_) current_ = &segment(config_, structure_);
+  if (current_->direct.rows() == 0) return 0;
+  const RunMatrix& P = last_entry_->P;
+  if (!P.is_sparse) {
+    switch (P.rows()) {
+      case 2: return steady_fixed<2>(k, n_samples, next_event);
+      case 3: return steady_fixed<3>(k, n_samples, next_event);
+      case 4: return steady_fixed<4>(k, n_samples, next_event);
+      case 5: return steady_fixed<5>(k, n_samples, next_event);
+      case 6: return steady_fixed<6>(k, n_samples, next_event);
+      case 7: return steady_fixed<7>(k, n_samples, next_event);
+      case 8: return steady_fixed<8>(k, n_samples, next_event);
+      default: break;
+    }
+  }
+  const auto& O = current_->direct;
+  Eigen::Map<Eigen::VectorXd> values(values_.data(), static_cast<Eigen::Index>(values_.size()));
+  long steps = 0;
+  for (long j = k; j < n_samples; ++j) {
+    const double tn = static_cast<double>(j + 1) * opt_.every;
+    if (tn >= next_event) break;
+    P.apply(X_, Y_);
+    X_.swap(Y_);
+    values.noalias() = O * X_;
+    deliver(tn);
+    ++steps;
+    if (opt_.progress && (j + 1) % progress_every_ == 0)
+      opt_.progress(static_cast<double>(j + 1) / static_cast<double>(n_samples));
+  }
+  return steps;
+}
+
+// steady_run for an augmented size N <= kFixedKernelMax: the state, the propagator and the
+// output map as fixed-size Eigen objects (no loop bounds or allocation per sample).
+template <int N>
+long Engine::steady_fixed(long k, long n_samples, double next_event) {
+  // Everything the loop reads is local: the sink is opaque to the compiler, so members would
+  // be reloaded after every call.
+  const Eigen::Matrix<double, N, N> P = last_entry_->P.dense;
+  const auto& direct = current_->direct;
+  const Eigen::Index nv = direct.rows();
+  const Eigen::Matrix<double, Eigen::Dynamic, N, Eigen::RowMajor> O = direct;
+  double* const values = values_.data();
+  const std::size_t count = values_.size();
+  const SampleSink& sink = sink_;
+  Eigen::Matrix<double, N, 1> x = X_, y;
+  const bool progress = static_cast<bool>(opt_.progress);
+  const long progress_every = progress_every_;
+  long until_progress = (progress_every - (k + 1) % progress_every) % progress_every + 1;
+  const double every = opt_.every;
+  long j = k;
+  for (; j < n_samples; ++j) {
+    const double tn = static_cast<double>(j + 1) * every;
+    if (tn >= next_event) break;
+    y.noalias() = P * x;
+    x = y;
+    // Each value a fixed-size dot product; 0 * v summed is 0 when every value is finite
+    // and NaN otherwise (one test per sample instead of one per value).
+    double nan_probe = 0;
+    for (Eigen::Index v = 0; v < nv; ++v) {
+      const double value = O.row(v).dot(x);
+      values[v] = value;
+      nan_probe += 0.0 * value;
+    }
+    if (nan_probe != 0.0) {  // true for NaN
+      X_ = x;
+      sum_.samples += static_cast<std::size_t>(j - k);
+      not_finite(tn);
+    }
+    sink(tn, values, count);
+    if (progress && --until_progress == 0) {
+      until_progress = progress_every;
+      opt_.progress(static_cast<double>(j + 1) / static_cast<double>(n_samples));
+    }
+  }
+  sum_.samples += static_cast<std::size_t>(j - k);
+  X_ = x;
+  return j - k;
 }
 
 TransientSummary Engine::run() {
@@ -1286,6 +1442,7 @@ TransientSummary Engine::run() {
     sum_.segments = 1;
     emit(0.0);
     const long progress_every = std::max(1L, n_samples / kProgressCalls);
+    progress_every_ = progress_every;
     double t = 0;
     for (long k = 0; k < n_samples;) {
       const double tn = static_cast<double>(k + 1) * opt_.every;
@@ -1320,6 +1477,15 @@ TransientSummary Engine::run() {
       emit(t);
       if (opt_.progress && k % progress_every == 0)
         opt_.progress(static_cast<double>(k) / static_cast<double>(n_samples));
+      if (at_sample) {
+        const long steps = steady_run(
+            k, n_samples,
+            e < events.size() ? events[e].t : std::numeric_limits<double>::infinity());
+        if (steps > 0) {
+          k += steps;
+          t = static_cast<double>(k) * opt_.every;
+        }
+      }
     }
     modal_checks();
     if (dense_) {

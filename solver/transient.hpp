@@ -61,6 +61,7 @@ struct TransientSummary {
   std::size_t segments = 0;          // intervals between corners / switch events
   std::size_t switch_events = 0;
   std::size_t propagators_built = 0; // dense expm evaluations (cache misses)
+  std::size_t sparse_propagators = 0; // of those, kept truncated sparse (propagation.hpp)
   double seconds = 0;                // wall time of the engine
   // With options.dense_output and status Ok: the exact solution, signals indexed as the
   // streamed ones followed by options.trajectory_signals. Holds what it needs (it outlives
