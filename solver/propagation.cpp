@@ -3,6 +3,7 @@
 #include "solver/propagation.hpp"
 
 #include <algorithm>
+#include <array>
 #include <cmath>
 #include <limits>
 #include <vector>
@@ -42,8 +43,15 @@ constexpr double kSparseDensity = 0.1;
 constexpr double kThetaSafety = 0.8;
 
 double theta(int m) {
-  return kThetaSafety *
-         std::exp((std::lgamma(m + 2.0) + std::log(kUnitRoundoff)) / (m + 1.0));
+  // Tabulated once: plan_action runs for every off-sample instant the figures visit.
+  static const std::array<double, kMaxTaylorDegree + 1> table = [] {
+    std::array<double, kMaxTaylorDegree + 1> t{};
+    for (int k = 1; k <= kMaxTaylorDegree; ++k)
+      t[static_cast<std::size_t>(k)] =
+          kThetaSafety * std::exp((std::lgamma(k + 2.0) + std::log(kUnitRoundoff)) / (k + 1.0));
+    return t;
+  }();
+  return table[static_cast<std::size_t>(m)];
 }
 
 // Choice of (m, s) minimising m*s with s = ceil(norm / theta_m).
