@@ -322,81 +322,81 @@ SweepOutcome run_sweep(const SweepContext& ctx) {
   const std::size_t record_count = base.records.size();
   // Over the ranks of a distributed run (cli/distribute.hpp); one rank: every job here.
   const auto run_jobs = [&](const std::vector<std::size_t>& jobs) {
-  parallel_for(jobs.size(), threads, progress, load_share, 1.0 - load_share, [&](std::size_t k) {
-    const std::size_t job = jobs[k];
-    JobResult& r = results[job];
-    const Point& point = points[job / per_point];
-    const std::size_t trial = job % per_point;
-    try {
-      std::optional<Circuit> copy;
-      const Circuit* c = &*point.circuit;
-      if (trials.active) {
-        copy = *point.circuit;
-        for (std::size_t e = 0; e < trials.parts.size(); ++e) {
-          const Part& part = copy->parts[static_cast<std::size_t>(trials.parts[e])];
-          const double factor = solver::draw_factor(trials.spread, *part.tol, base.trials->seed, trial, e, trials.enumerate);
-          Element& el = copy->elements[static_cast<std::size_t>(part.main)];
-          if (!(factor > 0)) {
-            r.exit_code = kExitBadInput;
-            r.diagnostics.push_back(make_diagnostic(
-                Severity::Error, part.where,
-                part.name + ": the normal draw of trial " + std::to_string(trial) + " changes its sign (factor " +
-                    number(factor, 4) + ")",
-                "a tolerance above about 35 % with spread=normal can reach zero; use spread=uniform"));
-            return;
+    parallel_for(jobs.size(), threads, progress, load_share, 1.0 - load_share, [&](std::size_t k) {
+      const std::size_t job = jobs[k];
+      JobResult& r = results[job];
+      const Point& point = points[job / per_point];
+      const std::size_t trial = job % per_point;
+      try {
+        std::optional<Circuit> copy;
+        const Circuit* c = &*point.circuit;
+        if (trials.active) {
+          copy = *point.circuit;
+          for (std::size_t e = 0; e < trials.parts.size(); ++e) {
+            const Part& part = copy->parts[static_cast<std::size_t>(trials.parts[e])];
+            const double factor = solver::draw_factor(trials.spread, *part.tol, base.trials->seed, trial, e, trials.enumerate);
+            Element& el = copy->elements[static_cast<std::size_t>(part.main)];
+            if (!(factor > 0)) {
+              r.exit_code = kExitBadInput;
+              r.diagnostics.push_back(make_diagnostic(
+                  Severity::Error, part.where,
+                  part.name + ": the normal draw of trial " + std::to_string(trial) + " changes its sign (factor " +
+                      number(factor, 4) + ")",
+                  "a tolerance above about 35 % with spread=normal can reach zero; use spread=uniform"));
+              return;
+            }
+            el.value *= factor;
+            r.drawn.push_back(el.value);
           }
-          el.value *= factor;
-          r.drawn.push_back(el.value);
+          c = &*copy;
         }
-        c = &*copy;
+        EvaluationScope scope;
+        scope.energy_balance = false;
+        scope.exact_safety = false;
+        const EvaluationPlan plan(*c, c->records, ctx.safety, scope);
+        solver::TransientOptions engine;
+        engine.until = ctx.until;
+        engine.every = ctx.every;
+        engine.initial_dc = ctx.initial_dc;
+        engine.strict = options.strict;
+        engine.dense_output = true;
+        engine.trajectory_signals = plan.extra_signals();
+        engine.formula_tolerance = ctx.formula_tolerance;
+        if (keep_signals) r.samples.resize(record_count);
+        bool finite = true;
+        const solver::SampleSink sink = [&](double t, const double* values, std::size_t count) {
+          for (std::size_t i = 0; i < count; ++i) finite = finite && std::isfinite(values[i]);
+          if (!keep_signals) return;
+          r.times.push_back(t);
+          for (std::size_t i = 0; i < count && i < record_count; ++i) r.samples[i].push_back(values[i]);
+        };
+        Diagnostics engine_diagnostics;
+        const solver::TransientSummary summary = solver::run_transient(*c, c->records, engine, sink, engine_diagnostics);
+        for (Diagnostic& d : engine_diagnostics) r.diagnostics.push_back(std::move(d));
+        if (summary.status == solver::Status::BadInput) r.exit_code = kExitBadInput;
+        else if (summary.status == solver::Status::Numerical || !finite) r.exit_code = kExitNumerical;
+        for (const Diagnostic& d : r.diagnostics)
+          if (d.severity == Severity::Error) r.exit_code = std::max(r.exit_code, static_cast<int>(kExitNumerical));
+        if (!finite)
+          r.diagnostics.push_back(command_line_diagnostic(
+              Severity::Error, "the engine produced a value that is not a finite number (NaN or infinity)",
+              "the network may be singular or unstable: check for floating parts or negative resistances"));
+        if (r.exit_code != kExitOk || !summary.trajectory) return;
+        const Evaluation ev = plan.evaluate(*summary.trajectory, summary.states, scope);
+        if (ev.safety.hazardous) r.hazard = ev.safety;
+        for (const FigureOutcome& f : ev.reports) r.reports.push_back(f.value);
+        for (const ExpectOutcome& e : ev.expects) {
+          r.expect_values.push_back(e.value);
+          r.expect_pass.push_back(e.pass);
+          r.pass = r.pass && e.pass;
+        }
+        for (const Diagnostic& d : ev.diagnostics)
+          if (d.severity != Severity::Error) r.diagnostics.push_back(d);  // figure errors: value.ok = false
+      } catch (const std::exception& e) {
+        r.exit_code = kExitNumerical;
+        r.diagnostics.push_back(command_line_diagnostic(Severity::Error, std::string("the run failed: ") + e.what()));
       }
-      EvaluationScope scope;
-      scope.energy_balance = false;
-      scope.exact_safety = false;
-      const EvaluationPlan plan(*c, c->records, ctx.safety, scope);
-      solver::TransientOptions engine;
-      engine.until = ctx.until;
-      engine.every = ctx.every;
-      engine.initial_dc = ctx.initial_dc;
-      engine.strict = options.strict;
-      engine.dense_output = true;
-      engine.trajectory_signals = plan.extra_signals();
-      engine.formula_tolerance = ctx.formula_tolerance;
-      if (keep_signals) r.samples.resize(record_count);
-      bool finite = true;
-      const solver::SampleSink sink = [&](double t, const double* values, std::size_t count) {
-        for (std::size_t i = 0; i < count; ++i) finite = finite && std::isfinite(values[i]);
-        if (!keep_signals) return;
-        r.times.push_back(t);
-        for (std::size_t i = 0; i < count && i < record_count; ++i) r.samples[i].push_back(values[i]);
-      };
-      Diagnostics engine_diagnostics;
-      const solver::TransientSummary summary = solver::run_transient(*c, c->records, engine, sink, engine_diagnostics);
-      for (Diagnostic& d : engine_diagnostics) r.diagnostics.push_back(std::move(d));
-      if (summary.status == solver::Status::BadInput) r.exit_code = kExitBadInput;
-      else if (summary.status == solver::Status::Numerical || !finite) r.exit_code = kExitNumerical;
-      for (const Diagnostic& d : r.diagnostics)
-        if (d.severity == Severity::Error) r.exit_code = std::max(r.exit_code, static_cast<int>(kExitNumerical));
-      if (!finite)
-        r.diagnostics.push_back(command_line_diagnostic(
-            Severity::Error, "the engine produced a value that is not a finite number (NaN or infinity)",
-            "the network may be singular or unstable: check for floating parts or negative resistances"));
-      if (r.exit_code != kExitOk || !summary.trajectory) return;
-      const Evaluation ev = plan.evaluate(*summary.trajectory, summary.states, scope);
-      if (ev.safety.hazardous) r.hazard = ev.safety;
-      for (const FigureOutcome& f : ev.reports) r.reports.push_back(f.value);
-      for (const ExpectOutcome& e : ev.expects) {
-        r.expect_values.push_back(e.value);
-        r.expect_pass.push_back(e.pass);
-        r.pass = r.pass && e.pass;
-      }
-      for (const Diagnostic& d : ev.diagnostics)
-        if (d.severity != Severity::Error) r.diagnostics.push_back(d);  // figure errors: value.ok = false
-    } catch (const std::exception& e) {
-      r.exit_code = kExitNumerical;
-      r.diagnostics.push_back(command_line_diagnostic(Severity::Error, std::string("the run failed: ") + e.what()));
-    }
-  });
+    });
   };
   const bool gathered = run_distributed(results, run_jobs);
   progress.finish();
