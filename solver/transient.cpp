@@ -827,6 +827,13 @@ void Engine::advance(double h, long uses_left) {
     return;
   }
   const PropagatorKey key{config_, structure_, std::llround(h / instant_)};
+  // The one-entry memo above, set to the entry this step uses.
+  const auto remember = [&](PropagatorEntry* e, const AugmentedSystem& sys) {
+    last_key_ = key;
+    last_entry_ = e;
+    last_h_ = h;
+    last_sys_ = &sys;
+  };
   PropagatorEntry* entry = nullptr;
   if (last_entry_ && last_key_ == key) {
     entry = last_entry_;
@@ -835,20 +842,14 @@ void Engine::advance(double h, long uses_left) {
     if (it != cache_.end()) entry = &it->second;
   }
   if (entry && !entry->P.empty()) {
-    last_key_ = key;
-    last_entry_ = entry;
-    last_h_ = h;
-    last_sys_ = &segment(config_, structure_).sys;
+    remember(entry, segment(config_, structure_).sys);
     entry->P.apply(X_, Y_);
     X_.swap(Y_);
     return;
   }
   Segment& seg = segment(config_, structure_);
   if (entry && entry->action) {
-    last_key_ = key;
-    last_entry_ = entry;
-    last_h_ = h;
-    last_sys_ = &seg.sys;
+    remember(entry, seg.sys);
     expm_action(seg.sys, h, entry->plan, X_, Y_, work1_, work2_);
     X_.swap(Y_);
     return;
@@ -873,10 +874,7 @@ void Engine::advance(double h, long uses_left) {
     if (!by_action) {
       dense = false;
       entry->action = true;
-      last_key_ = key;
-      last_entry_ = entry;
-      last_h_ = h;
-      last_sys_ = &seg.sys;
+      remember(entry, seg.sys);
     }
   }
   if (dense) {
@@ -892,7 +890,8 @@ void Engine::advance(double h, long uses_left) {
     Eigen::MatrixXd P;
     const Eigen::Index r = states_;
     const auto block = state_blocks_.find({config_, key.length});
-    if (block != state_blocks_.end() && !stiff && seg.sys.use_sparse) {
+    const bool from_block = block != state_blocks_.end() && !stiff && seg.sys.use_sparse;
+    if (from_block) {
       // [[Phi, G], [0, W]]: Phi known, the input columns by actions on unit vectors. Only on
       // large sparse systems, where a dense expm is costly; small ones keep the
       // stiff-accurate propagator for every structure.
@@ -914,14 +913,10 @@ void Engine::advance(double h, long uses_left) {
         throw NumericalFailure(std::string("the matrix exponential failed: ") + ex.what());
       }
       ++sum_.propagators_built;
-      if (P.allFinite()) {
-        state_blocks_.emplace(std::make_pair(config_, key.length), P.topLeftCorner(r, r));
-        cache_bytes_ += 8.0 * static_cast<double>(r * r);
-      }
     }
     if (!P.allFinite())
       throw NumericalFailure("the propagator over " + fmt_num(h, "s") + " is not finite");
-    if (by_action && P.allFinite()) {
+    if (!from_block) {  // its state block, for the configuration's other input structures
       state_blocks_.emplace(std::make_pair(config_, key.length), P.topLeftCorner(r, r));
       cache_bytes_ += 8.0 * static_cast<double>(r * r);
     }
@@ -930,10 +925,7 @@ void Engine::advance(double h, long uses_left) {
                                                  action_flops(seg.sys, entry->plan))) {
       entry->P = RunMatrix();  // does not pay: the action for good
       entry->action = true;
-      last_key_ = key;
-      last_entry_ = entry;
-      last_h_ = h;
-      last_sys_ = &seg.sys;
+      remember(entry, seg.sys);
       expm_action(seg.sys, h, entry->plan, X_, Y_, work1_, work2_);
       X_.swap(Y_);
       return;
