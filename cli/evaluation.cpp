@@ -471,23 +471,24 @@ Evaluation EvaluationPlan::evaluate(const solver::Trajectory& tr, std::size_t st
   s.band = safety_;
   s.limitation = screen_limitation_;
   const std::vector<double> times = tr.sample_times();
-  // The sampled statistics of every screened voltage, instant by instant: the trajectory
-  // keeps its state at the last instant asked, so each sample costs one lookup for all the
-  // voltages (voltage by voltage it would cost one per voltage and sample). Each voltage's
-  // sums still run over the samples in time order, so the values do not change.
+  // The sampled statistics of every screened voltage: all of them at every sample in one
+  // pass of the trajectory (Trajectory::at_samples), then each voltage's sums over its
+  // samples in time order.
   struct Sampled {
     double peak = 0, at = 0, sum = 0, sum2 = 0;
   };
   std::vector<Sampled> sampled(screen_.size());
   std::vector<std::size_t> screened(screen_.size());
   for (std::size_t i = 0; i < screen_.size(); ++i) screened[i] = screen_[i].signal;
-  std::vector<double> at_t(screen_.size());
-  for (double t : times) {
-    tr.values(screened.data(), screened.size(), t, at_t.data());
-    for (std::size_t i = 0; i < screen_.size(); ++i) {
-      Sampled& q = sampled[i];
-      const double x = at_t[i];
-      if (std::abs(x) > q.peak) q.at = t;
+  const std::size_t sample_count = times.size();
+  std::vector<double> at_samples(screen_.size() * sample_count);
+  if (!at_samples.empty()) tr.at_samples(screened.data(), screened.size(), at_samples.data(), nullptr);
+  for (std::size_t i = 0; i < screen_.size(); ++i) {
+    Sampled& q = sampled[i];
+    const double* v = at_samples.data() + i * sample_count;
+    for (std::size_t k = 0; k < sample_count; ++k) {
+      const double x = v[k];
+      if (std::abs(x) > q.peak) q.at = times[k];
       q.peak = std::max(q.peak, std::abs(x));
       q.sum += x;
       q.sum2 += x * x;

@@ -18,6 +18,7 @@
 
 #include <Eigen/Eigenvalues>
 #include <algorithm>
+#include <array>
 #include <atomic>
 #include <cmath>
 #include <cstdint>
@@ -124,6 +125,91 @@ class DenseTrajectory final : public Trajectory {
     std::lock_guard<std::mutex> lock(mutex_);
     for (std::size_t i = 0; i < count; ++i) out[i] = evaluate_locked(signals[i], t, false, false);
   }
+  // One pass over the checkpoints. Consecutive checkpoints of one segment lie back to back
+  // in memory, so the bases the signals load come as one product per run of them,
+  // (rows of O) x [X_i X_i+1 ...], instead of a dot product per base and sample; the
+  // programs then run on those bases. A sample that is no checkpoint (the memory budget
+  // strides them) is looked up like any instant.
+  void at_samples(const std::size_t* signals, std::size_t count, double* values,
+                  double* derivatives) const override {
+    std::lock_guard<std::mutex> lock(mutex_);
+    memo_valid_ = false;  // base_ is overwritten below
+    const auto n = static_cast<std::size_t>(p_.samples) + 1;
+    const DenseRecorder& c = p_.checkpoints;
+    std::vector<int> bases;
+    for (std::size_t j = 0; j < count; ++j) {
+      if (signals[j] >= p_.programs.size()) continue;
+      for (int b : used_[signals[j]])
+        if (std::find(bases.begin(), bases.end(), b) == bases.end()) bases.push_back(b);
+    }
+    const auto put = [&](std::size_t k) {
+      for (std::size_t j = 0; j < count; ++j) {
+        if (signals[j] >= p_.programs.size()) {
+          values[j * n + k] = std::numeric_limits<double>::quiet_NaN();
+          if (derivatives) derivatives[j * n + k] = std::numeric_limits<double>::quiet_NaN();
+          continue;
+        }
+        const std::vector<Instr>& code = p_.programs[signals[j]];
+        values[j * n + k] = run_program(code, base_.data(), sv_.data());
+        if (derivatives) derivatives[j * n + k] = run_dual(code);
+      }
+    };
+    // The checkpoint of every sample, or none.
+    constexpr std::size_t kNone = static_cast<std::size_t>(-1);
+    std::vector<std::size_t> checkpoint(n, kNone);
+    for (std::size_t k = 0, i = 0; k < n; ++k) {
+      const double t = std::clamp(static_cast<double>(k) * p_.every, 0.0, p_.end);
+      while (i + 1 < c.t.size() && c.t[i + 1] <= t) ++i;
+      if (i < c.t.size() && c.t[i] == t) checkpoint[k] = i;
+    }
+    Eigen::MatrixXd rows, drows, Y, dY;
+    std::size_t k = 0;
+    for (std::size_t i0 = 0; i0 < c.t.size();) {
+      // A run [i0, i1) of one segment and state size, at most kColumns long.
+      std::size_t i1 = i0 + 1;
+      while (i1 < c.t.size() && i1 - i0 < kColumns && c.segment[i1] == c.segment[i0] &&
+             c.size[i1] == c.size[i0] && c.offset[i1] == c.offset[i1 - 1] + c.size[i1 - 1])
+        ++i1;
+      // The samples whose checkpoints lie in the run (samples are in time order, so are
+      // their checkpoints); those before it without a checkpoint are looked up.
+      while (k < n && (checkpoint[k] == kNone || checkpoint[k] < i0)) {
+        if (checkpoint[k] == kNone) lookup(signals, count, values, derivatives, n, k);
+        ++k;
+      }
+      if (k < n && checkpoint[k] < i1) {
+        const auto g = static_cast<std::size_t>(c.segment[i0]);
+        const auto states = static_cast<Eigen::Index>(c.size[i0]);
+        const Eigen::Map<const Eigen::MatrixXd> X(c.data.data() + c.offset[i0], states,
+                                                  static_cast<Eigen::Index>(i1 - i0));
+        rows.resize(static_cast<Eigen::Index>(bases.size()), states);
+        for (std::size_t m = 0; m < bases.size(); ++m)
+          rows.row(static_cast<Eigen::Index>(m)) = p_.segments[g].O.row(bases[m]);
+        Y.noalias() = rows * X;
+        if (derivatives) {
+          drows.resize(rows.rows(), states);
+          for (std::size_t m = 0; m < bases.size(); ++m)
+            drows.row(static_cast<Eigen::Index>(m)) = OM_[g].row(bases[m]);
+          dY.noalias() = drows * X;
+        }
+        for (; k < n && (checkpoint[k] == kNone || checkpoint[k] < i1); ++k) {
+          if (checkpoint[k] == kNone) {
+            lookup(signals, count, values, derivatives, n, k);
+            continue;
+          }
+          const auto col = static_cast<Eigen::Index>(checkpoint[k] - i0);
+          for (std::size_t m = 0; m < bases.size(); ++m) {
+            const auto b = static_cast<std::size_t>(bases[m]);
+            base_[b] = Y(static_cast<Eigen::Index>(m), col);
+            if (derivatives) dbase_[b] = dY(static_cast<Eigen::Index>(m), col);
+          }
+          put(k);
+        }
+      }
+      i0 = i1;
+    }
+    for (; k < n; ++k) lookup(signals, count, values, derivatives, n, k);
+    memo_valid_ = false;
+  }
   double value_before(std::size_t k, double t) const override {
     return evaluate(k, t, true, false);
   }
@@ -155,8 +241,37 @@ class DenseTrajectory final : public Trajectory {
     return want_derivative ? run_dual(p_.programs[k]) : run_program(p_.programs[k], base_.data(), sv_.data());
   }
 
+  // at_samples() for one sample k that has no checkpoint of its own.
+  void lookup(const std::size_t* signals, std::size_t count, double* values, double* derivatives,
+              std::size_t n, std::size_t k) const {
+    const double t = std::clamp(static_cast<double>(k) * p_.every, 0.0, p_.end);
+    for (std::size_t j = 0; j < count; ++j) {
+      values[j * n + k] = evaluate_locked(signals[j], t, false, false);
+      if (derivatives) derivatives[j * n + k] = evaluate_locked(signals[j], t, false, true);
+    }
+    memo_valid_ = false;  // at_samples() writes base_ directly
+  }
+  // Checkpoints at_samples() multiplies at once (bounds its temporaries; common practice,
+  // no source).
+  static constexpr std::size_t kColumns = 1024;
+
   Eigen::Map<const Eigen::VectorXd> state() const {
     return {x_ptr_, static_cast<Eigen::Index>(x_size_)};
+  }
+
+  // Sets the memo to checkpoint i, itself at t or before it (then the caller propagates).
+  void at_checkpoint(std::size_t i, double t) const {
+    const DenseRecorder& c = p_.checkpoints;
+    memo_valid_ = true;
+    memo_t_ = t;
+    memo_left_ = false;
+    std::fill(base_ok_.begin(), base_ok_.end(), 0);
+    std::fill(dbase_ok_.begin(), dbase_ok_.end(), 0);
+    seg_ = c.segment[i];
+    x_ptr_ = c.data.data() + c.offset[i];
+    x_size_ = c.size[i];
+    rows_ = &p_.segments[static_cast<std::size_t>(seg_)].O;
+    drows_ = &OM_[static_cast<std::size_t>(seg_)];
   }
 
   // Sets the memo to X at t (left: the left limit), from the checkpoint before it.
@@ -183,16 +298,30 @@ class DenseTrajectory final : public Trajectory {
     auto it = left ? std::lower_bound(c.t.begin(), c.t.end(), t)
                    : std::upper_bound(c.t.begin(), c.t.end(), t);
     std::size_t i = it == c.t.begin() ? 0 : static_cast<std::size_t>(it - c.t.begin()) - 1;
-    seg_ = c.segment[i];
-    const double* x = c.data.data() + c.offset[i];
-    const std::size_t n = c.size[i];
+    at_checkpoint(i, t);
+    memo_left_ = left;
     const double h = t - c.t[i];
-    x_ptr_ = x;
-    x_size_ = n;
-    rows_ = &p_.segments[static_cast<std::size_t>(seg_)].O;
-    drows_ = &OM_[static_cast<std::size_t>(seg_)];
     if (!(h > 0)) return;
+    const double* x = x_ptr_;
+    const std::size_t n = x_size_;
+    // An instant met again shortly after (a root finder's answer is one of its own iterates,
+    // then asked for its value): the state it propagated to, kept, not a second propagation
+    // that would count as a recurring length and buy output rows nobody reuses.
+    const long long length = std::llround(h / p_.instant);
+    for (const Recent& r : recent_)
+      if (r.checkpoint == i && r.length == length && r.state.size() == static_cast<Eigen::Index>(n)) {
+        x_ptr_ = r.state.data();
+        return;
+      }
     propagate(seg_, h, Eigen::Map<const Eigen::VectorXd>(x, static_cast<Eigen::Index>(n)));
+    if (x_ptr_ == y_.data()) {  // propagated by the action: keep the state
+      Recent& r = recent_[recent_next_];
+      recent_next_ = (recent_next_ + 1) % recent_.size();
+      r.checkpoint = i;
+      r.length = length;
+      r.state = y_;
+      x_ptr_ = r.state.data();
+    }
   }
 
   // Carries the checkpoint x over h in segment g: either the rows move (rows_ = O expm(M h),
@@ -324,6 +453,16 @@ class DenseTrajectory final : public Trajectory {
   mutable Eigen::VectorXd x_, y_, w1_, w2_;
   mutable std::vector<double> base_, dbase_, sv_, sd_;
   mutable std::vector<char> base_ok_, dbase_ok_;
+  // The last few states reached by the action (checkpoint, length rounded to the time
+  // resolution): kRecentStates of them (common practice, no source).
+  struct Recent {
+    std::size_t checkpoint = static_cast<std::size_t>(-1);
+    long long length = 0;
+    Eigen::VectorXd state;
+  };
+  static constexpr std::size_t kRecentStates = 4;
+  mutable std::array<Recent, kRecentStates> recent_;
+  mutable std::size_t recent_next_ = 0;
 };
 
 }  // namespace

@@ -194,9 +194,11 @@ struct Jump {
 // One window of one curve, scanned as described atop the file.
 class Scan {
  public:
-  Scan(Curve curve, const Trajectory& tr, double a, double b)
+  // `signal`: the trajectory signal the curve is, whose samples are then read in one pass
+  // (Trajectory::at_samples); kNoNode for any other curve.
+  Scan(Curve curve, const Trajectory& tr, double a, double b, std::size_t signal = kNoNode)
       : curve_(std::move(curve)), a_(a), b_(b), tol_(kTimeTolerance * (b - a)) {
-    build_nodes(tr);
+    build_nodes(tr, signal);
     find_extrema();
   }
 
@@ -286,18 +288,34 @@ class Scan {
     return nodes_[j].t;
   }
 
-  void build_nodes(const Trajectory& tr) {
+  void build_nodes(const Trajectory& tr, std::size_t signal) {
     std::vector<double> cuts;
     bool end_is_corner = false;
     for (double c : tr.corners()) {
       if (c > a_ && c < b_) cuts.push_back(c);
       if (c == b_) end_is_corner = true;
     }
+    const std::vector<double> all_samples = tr.sample_times();
+    // The signal at every sample, in one pass, when the curve is a trajectory signal: the
+    // nodes at samples take these (the same numbers value() and derivative() give there).
+    std::vector<double> sv, sd;
+    if (signal != kNoNode) {
+      sv.resize(all_samples.size());
+      sd.resize(all_samples.size());
+      tr.at_samples(&signal, 1, sv.data(), sd.data());
+    }
     std::vector<double> samples;
-    for (double s : tr.sample_times())
-      if (s > a_ && s < b_) samples.push_back(s);
+    std::vector<std::size_t> sample_index;  // into all_samples
+    for (std::size_t k = 0; k < all_samples.size(); ++k)
+      if (all_samples[k] > a_ && all_samples[k] < b_) {
+        samples.push_back(all_samples[k]);
+        sample_index.push_back(k);
+      }
     std::sort(cuts.begin(), cuts.end());
-    std::sort(samples.begin(), samples.end());
+    if (!std::is_sorted(samples.begin(), samples.end())) {  // sample_times() is sorted; be safe
+      sv.clear();
+      std::sort(samples.begin(), samples.end());
+    }
 
     std::vector<double> bounds{a_};
     bounds.insert(bounds.end(), cuts.begin(), cuts.end());
@@ -310,10 +328,15 @@ class Scan {
       const double p0 = bounds[k], p1 = bounds[k + 1];
       if (!(p1 > p0)) continue;
       std::vector<double> coarse{p0};
+      std::vector<std::size_t> coarse_sample{kNoNode};  // index into all_samples, or kNoNode
       while (si < samples.size() && samples[si] <= p0) ++si;
-      while (si < samples.size() && samples[si] < p1) coarse.push_back(samples[si++]);
+      while (si < samples.size() && samples[si] < p1) {
+        coarse_sample.push_back(sv.empty() ? kNoNode : sample_index[si]);
+        coarse.push_back(samples[si++]);
+      }
       coarse.push_back(p1);
       std::vector<double> times;
+      std::vector<std::size_t> time_sample;  // per time: its sample, or kNoNode
       for (std::size_t m = 0; m + 1 < coarse.size(); ++m) {
         const double x0 = coarse[m], x1 = coarse[m + 1];
         long sub = kRefineSubintervals;
@@ -327,12 +350,16 @@ class Scan {
         const bool geometric = m == 0 && step > 0 && sub < kRefineSubintervals;
         for (long q = 0; q < sub; ++q) {
           times.push_back(x0 + (x1 - x0) * q / sub);
+          time_sample.push_back(q == 0 ? coarse_sample[m] : kNoNode);
           if (q == 0 && geometric)
-            for (int j = kPieceStartHalvings; j >= 1; --j)
+            for (int j = kPieceStartHalvings; j >= 1; --j) {
               times.push_back(x0 + (x1 - x0) / sub * std::ldexp(1.0, -j));
+              time_sample.push_back(kNoNode);
+            }
         }
       }
       times.push_back(p1);
+      time_sample.push_back(kNoNode);
       const bool left_limit_at_end = k + 2 < bounds.size() || end_is_corner;
       std::vector<Node> piece;
       piece.reserve(times.size());
@@ -343,6 +370,9 @@ class Scan {
         if (q + 1 == times.size() && left_limit_at_end) {
           n.v = curve_.value_before(t);
           n.d = curve_.derivative_before(t);
+        } else if (time_sample[q] != kNoNode) {
+          n.v = sv[time_sample[q]];
+          n.d = sd[time_sample[q]];
         } else {
           n.v = curve_.value(t);
           n.d = curve_.derivative(t);
@@ -588,7 +618,7 @@ struct ScanMemo::Impl {
   const Scan& scan(const Trajectory& tr, std::size_t signal, double a, double b) {
     for (const Kept& k : kept)
       if (k.trajectory == &tr && k.signal == signal && k.a == a && k.b == b) return *k.scan;
-    kept.push_back({&tr, signal, a, b, std::make_unique<const Scan>(signal_curve(tr, signal), tr, a, b)});
+    kept.push_back({&tr, signal, a, b, std::make_unique<const Scan>(signal_curve(tr, signal), tr, a, b, signal)});
     return *kept.back().scan;
   }
 };
@@ -671,7 +701,7 @@ FigureValue evaluate_figure(const FigureCall& call, const Trajectory& trajectory
   }
 
   std::optional<Scan> own;
-  if (!memo) own.emplace(s, trajectory, a, b);
+  if (!memo) own.emplace(s, trajectory, a, b, signal_index);
   const Scan& scan = memo ? memo->impl->scan(trajectory, signal_index, a, b) : *own;
 
   if (f == "max" || f == "min" || f == "peak" || f == "pp" || f == "tmax" || f == "tmin") {

@@ -43,6 +43,22 @@ class Trajectory {
     for (std::size_t i = 0; i < count; ++i) out[i] = value(signals[i], t);
   }
 
+  // Every signals[i] (i < count) at every output sample (sample_times(), S of them): the
+  // value into values[i * S + k] and, when `derivatives` is not null, the derivative into
+  // derivatives[i * S + k]. The same numbers value() and derivative() give at those instants
+  // (the figures' scans and the safety screen read every sample); an engine that keeps the
+  // state at each sample may answer in one pass instead of S lookups.
+  virtual void at_samples(const std::size_t* signals, std::size_t count, double* values,
+                          double* derivatives) const {
+    const std::vector<double> times = sample_times();
+    const std::size_t n = times.size();
+    for (std::size_t i = 0; i < count; ++i)
+      for (std::size_t k = 0; k < n; ++k) {
+        values[i * n + k] = value(signals[i], times[k]);
+        if (derivatives) derivatives[i * n + k] = derivative(signals[i], times[k]);
+      }
+  }
+
   // Left limits at a corner. The default evaluates one ulp before t, where the previous
   // segment's formula applies: exact to rounding for a formula that is smooth up to t.
   // An engine that stores the state just before each corner may override these.

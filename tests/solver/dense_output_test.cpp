@@ -450,4 +450,70 @@ TEST(DenseOutput, MemoryBudgetPathGivesTheSameValues) {
   EXPECT_NEAR(figure(thin.tr(), "max"), 1 + rlc.overshoot(), 1e-9);
 }
 
+TEST(DenseOutput, AllSamplesInOnePassMatchTheSeriesRlcAndTheLookups) {
+  // Trajectory::at_samples over a run with a source step between samples (two segments:
+  // at rest, then driven), on the full checkpoint path and on the memory-budget path (every
+  // other sample is no checkpoint and is looked up): against the closed form of the series
+  // RLC (SeriesRlc above, Nilsson & Riedel) and against value()/derivative() at the same
+  // instants, which it must reproduce to rounding (a product over the stored states instead
+  // of a dot product per base; common practice, no source).
+  const SeriesRlc rlc = [] {
+    SeriesRlc s = with_zeta(0.15);
+    s.at = 3.3e-5;
+    return s;
+  }();
+  int cap = 0, ind = 0;
+  CircuitBuilder b = rlc.build(cap, ind);
+  const std::vector<Signal> sig{b.v("out"), b.q(ind, Quantity::Current)};
+  const double until = 12 * rlc.period(), every = rlc.period() / 37;
+  for (const double budget : {0.0, 4096.0}) {
+    solver::set_dense_budget_bytes(budget);
+    const DenseRun r = run_dense(b.c, sig, until, every, false);
+    solver::set_dense_budget_bytes(0);
+    const solver::Trajectory& tr = r.tr();
+    const std::vector<double> times = tr.sample_times();
+    const std::size_t n = times.size();
+    const std::size_t which[] = {1, 0, 1};  // repeated and out of order on purpose
+    std::vector<double> v(3 * n), d(3 * n), v_only(3 * n);
+    tr.at_samples(which, 3, v.data(), d.data());
+    tr.at_samples(which, 3, v_only.data(), nullptr);
+    const double i_scale = rlc.C * rlc.V * rlc.w0();
+    double to_lookup = 0, to_closed = 0;
+    for (std::size_t j = 0; j < 3; ++j) {
+      const double scale = which[j] == 0 ? rlc.V : i_scale;
+      for (std::size_t k = 0; k < n; ++k) {
+        const double t = times[k];
+        to_lookup = std::max({to_lookup, std::abs(v[j * n + k] - tr.value(which[j], t)) / scale,
+                              std::abs(d[j * n + k] - tr.derivative(which[j], t)) / (scale * rlc.w0())});
+        EXPECT_EQ(v[j * n + k], v_only[j * n + k]);
+        const double exact = which[j] == 0 ? rlc.v(t) : rlc.C * rlc.dv(t);
+        to_closed = std::max(to_closed, std::abs(v[j * n + k] - exact) / scale);
+      }
+    }
+    EXPECT_LT(to_lookup, 1e-14) << "budget " << budget;
+    EXPECT_LT(to_closed, 1e-11) << "budget " << budget;
+  }
+}
+
+TEST(DenseOutput, AnInstantAskedAgainGivesTheSameValue) {
+  // A root finder returns one of its own iterates and then asks its value: the trajectory
+  // answers from the state it kept (no second propagation), so the value is the one given
+  // the first time, bit for bit, however the instants in between were reached; and it is
+  // the closed form (SeriesRlc, Nilsson & Riedel).
+  const SeriesRlc rlc = with_zeta(0.1);
+  int cap = 0, ind = 0;
+  CircuitBuilder b = rlc.build(cap, ind);
+  const DenseRun r = run_dense(b.c, {b.v("out")}, 5 * rlc.period(), rlc.period() / 10, false);
+  const solver::Trajectory& tr = r.tr();
+  const double t1 = 1.2345 * rlc.period(), t2 = 2.71 * rlc.period(), t3 = 1.2346 * rlc.period();
+  const double first = tr.value(0, t1);
+  const double d_first = tr.derivative(0, t1);
+  (void)tr.value(0, t2);
+  (void)tr.derivative(0, t3);
+  EXPECT_EQ(tr.value(0, t1), first);
+  EXPECT_EQ(tr.derivative(0, t1), d_first);
+  EXPECT_NEAR(first, rlc.v(t1), 1e-12);
+  EXPECT_NEAR(d_first, rlc.dv(t1), 1e-12 * rlc.V * rlc.w0());
+}
+
 }  // namespace
