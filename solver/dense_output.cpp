@@ -142,16 +142,39 @@ class DenseTrajectory final : public Trajectory {
       for (int b : used_[signals[j]])
         if (std::find(bases.begin(), bases.end(), b) == bases.end()) bases.push_back(b);
     }
-    const auto put = [&](std::size_t k) {
+    // A signal that is one base as it is (a node voltage, most often) is copied from the
+    // product; the others run their programs on the bases.
+    constexpr Eigen::Index kProgram = -1;
+    std::vector<Eigen::Index> direct(count, kProgram);
+    bool programs = false;
+    for (std::size_t j = 0; j < count; ++j) {
+      if (signals[j] >= p_.programs.size()) continue;
+      const std::vector<Instr>& code = p_.programs[signals[j]];
+      if (code.size() == 1 && code[0].kind == Instr::Load)
+        direct[j] = static_cast<Eigen::Index>(std::find(bases.begin(), bases.end(), code[0].base) - bases.begin());
+      else
+        programs = true;
+    }
+    const auto put = [&](std::size_t k, const Eigen::MatrixXd& Y, const Eigen::MatrixXd& dY,
+                         Eigen::Index col) {
+      if (programs)
+        for (std::size_t m = 0; m < bases.size(); ++m) {
+          const auto b = static_cast<std::size_t>(bases[m]);
+          base_[b] = Y(static_cast<Eigen::Index>(m), col);
+          if (derivatives) dbase_[b] = dY(static_cast<Eigen::Index>(m), col);
+        }
       for (std::size_t j = 0; j < count; ++j) {
         if (signals[j] >= p_.programs.size()) {
           values[j * n + k] = std::numeric_limits<double>::quiet_NaN();
           if (derivatives) derivatives[j * n + k] = std::numeric_limits<double>::quiet_NaN();
-          continue;
+        } else if (direct[j] != kProgram) {
+          values[j * n + k] = Y(direct[j], col);
+          if (derivatives) derivatives[j * n + k] = dY(direct[j], col);
+        } else {
+          const std::vector<Instr>& code = p_.programs[signals[j]];
+          values[j * n + k] = run_program(code, base_.data(), sv_.data());
+          if (derivatives) derivatives[j * n + k] = run_dual(code);
         }
-        const std::vector<Instr>& code = p_.programs[signals[j]];
-        values[j * n + k] = run_program(code, base_.data(), sv_.data());
-        if (derivatives) derivatives[j * n + k] = run_dual(code);
       }
     };
     // The checkpoint of every sample, or none.
@@ -196,13 +219,7 @@ class DenseTrajectory final : public Trajectory {
             lookup(signals, count, values, derivatives, n, k);
             continue;
           }
-          const auto col = static_cast<Eigen::Index>(checkpoint[k] - i0);
-          for (std::size_t m = 0; m < bases.size(); ++m) {
-            const auto b = static_cast<std::size_t>(bases[m]);
-            base_[b] = Y(static_cast<Eigen::Index>(m), col);
-            if (derivatives) dbase_[b] = dY(static_cast<Eigen::Index>(m), col);
-          }
-          put(k);
+          put(k, Y, dY, static_cast<Eigen::Index>(checkpoint[k] - i0));
         }
       }
       i0 = i1;

@@ -464,7 +464,8 @@ TEST(DenseOutput, AllSamplesInOnePassMatchTheSeriesRlcAndTheLookups) {
   }();
   int cap = 0, ind = 0;
   CircuitBuilder b = rlc.build(cap, ind);
-  const std::vector<Signal> sig{b.v("out"), b.q(ind, Quantity::Current)};
+  // The capacitor's power v i is a program over two bases (a product), not a base itself.
+  const std::vector<Signal> sig{b.v("out"), b.q(ind, Quantity::Current), b.q(cap, Quantity::Power)};
   const double until = 12 * rlc.period(), every = rlc.period() / 37;
   for (const double budget : {0.0, 4096.0}) {
     solver::set_dense_budget_bytes(budget);
@@ -473,20 +474,22 @@ TEST(DenseOutput, AllSamplesInOnePassMatchTheSeriesRlcAndTheLookups) {
     const solver::Trajectory& tr = r.tr();
     const std::vector<double> times = tr.sample_times();
     const std::size_t n = times.size();
-    const std::size_t which[] = {1, 0, 1};  // repeated and out of order on purpose
-    std::vector<double> v(3 * n), d(3 * n), v_only(3 * n);
-    tr.at_samples(which, 3, v.data(), d.data());
-    tr.at_samples(which, 3, v_only.data(), nullptr);
+    const std::size_t which[] = {1, 0, 2, 1};  // repeated and out of order on purpose
+    std::vector<double> v(4 * n), d(4 * n), v_only(4 * n);
+    tr.at_samples(which, 4, v.data(), d.data());
+    tr.at_samples(which, 4, v_only.data(), nullptr);
     const double i_scale = rlc.C * rlc.V * rlc.w0();
     double to_lookup = 0, to_closed = 0;
-    for (std::size_t j = 0; j < 3; ++j) {
-      const double scale = which[j] == 0 ? rlc.V : i_scale;
+    for (std::size_t j = 0; j < 4; ++j) {
+      const double scale = which[j] == 0 ? rlc.V : (which[j] == 1 ? i_scale : rlc.V * i_scale);
       for (std::size_t k = 0; k < n; ++k) {
         const double t = times[k];
         to_lookup = std::max({to_lookup, std::abs(v[j * n + k] - tr.value(which[j], t)) / scale,
                               std::abs(d[j * n + k] - tr.derivative(which[j], t)) / (scale * rlc.w0())});
         EXPECT_EQ(v[j * n + k], v_only[j * n + k]);
-        const double exact = which[j] == 0 ? rlc.v(t) : rlc.C * rlc.dv(t);
+        const double exact = which[j] == 0   ? rlc.v(t)
+                             : which[j] == 1 ? rlc.C * rlc.dv(t)
+                                             : rlc.v(t) * rlc.C * rlc.dv(t);  // p = v i
         to_closed = std::max(to_closed, std::abs(v[j * n + k] - exact) / scale);
       }
     }
