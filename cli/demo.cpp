@@ -36,7 +36,7 @@ int run_demo(const DemoOptions& options) {
   run.file = std::string("demo:") + generated::kDemoName;
   run.no_progress = options.no_progress;
   if (!options.no_plot) run.plot = "term";
-  return run_loaded(run, [&](const LoadOptions& load) { return load_text(text, run.file, load); });
+  return run_loaded(run, parse_once([&] { return parse_text(text, run.file); }));
 }
 
 }  // namespace ringdown::cli

@@ -18,6 +18,7 @@
 #include <cstdio>
 #include <fstream>
 #include <memory>
+#include <mutex>
 #include <optional>
 #include <string>
 
@@ -744,10 +745,24 @@ SimulatedFile simulate_file(const RunOptions& options) {
   return out;
 }
 
+Loader parse_once(std::function<std::shared_ptr<const ParsedSource>()> parse) {
+  struct Once {
+    std::once_flag flag;
+    std::function<std::shared_ptr<const ParsedSource>()> parse;
+    std::shared_ptr<const ParsedSource> source;
+  };
+  auto once = std::make_shared<Once>();
+  once->parse = std::move(parse);
+  return [once](const LoadOptions& load) {
+    std::call_once(once->flag, [&once] { once->source = once->parse(); });
+    return elaborate(*once->source, load);
+  };
+}
+
 int run_run(const RunOptions& options) {
   if (!readable_or_report(options.file)) return kExitBadInput;
   const std::string file = options.file;
-  return run_loaded(options, [file](const LoadOptions& load) { return load_file(file, load); });
+  return run_loaded(options, parse_once([file] { return parse_file(file); }));
 }
 
 int run_loaded(const RunOptions& options, const Loader& load) {
@@ -774,7 +789,7 @@ int run_check(const CheckOptions& options) {
       outcome.junit.name = file;
       outcome.junit.cases.push_back(refused_case(file, "cannot read the file", {}, 0));
     } else {
-      outcome = execute(run, [&file](const LoadOptions& load) { return load_file(file, load); }, Mode::Check);
+      outcome = execute(run, parse_once([&file] { return parse_file(file); }), Mode::Check);
     }
     // The worst outcome wins: a numerical failure (3) over bad input (2) over a failed expect (1).
     worst = std::max(worst, outcome.exit_code);

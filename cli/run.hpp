@@ -62,9 +62,16 @@ CLI::App* setup_check(CLI::App& app, CheckOptions& options);
 int run_check(const CheckOptions& options);
 
 // The body of `run` for a circuit from anywhere (a file, or the demo's text):
-// `load` reads and elaborates it with the given options.
+// `load` reads and elaborates it with the given options. It is called once for the
+// circuit, then once per sweep point, from several threads at once (cli/sweep.hpp).
 using Loader = std::function<LoadResult(const LoadOptions&)>;
 int run_loaded(const RunOptions& options, const Loader& load);
+
+// A Loader that calls `parse` once, at its first call, and elaborates every call from that
+// one ParsedSource (parser/load.hpp): the circuit and its sweep points are read and parsed
+// once, and each point only elaborated with its --set values. Results are identical to
+// load_file / load_text on every call. Safe to call from several threads at once.
+Loader parse_once(std::function<std::shared_ptr<const ParsedSource>()> parse);
 
 // One file run for commands built on run (compare): the circuit, the summary with the exact
 // trajectory, the figures, and the recorded signals at the samples. Warnings, errors and the

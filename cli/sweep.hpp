@@ -2,9 +2,10 @@
 // `run` and `check` hand a file to when it has `sweep` or `trials` statements, or when a
 // `--set NAME=LIST` gives a list.
 //
-// A sweep point is the file loaded again with each swept parameter overridden by its value
+// A sweep point is the file elaborated again with each swept parameter overridden by its value
 // (the same path as `--set NAME=VALUE`, so units and dependent parameters are recomputed
-// exactly as there). A trial is its point's circuit with each toleranced part's main
+// exactly as there) through the context's Loader; `run` and `check` give one that read and
+// parsed the file once (cli::parse_once), so a point is not parsed again. A trial is its point's circuit with each toleranced part's main
 // element scaled by a draw of solver/draws.hpp. Points are loaded in parallel, then every
 // (point, trial) runs in parallel over --jobs threads; each result is stored at its index,
 // so every output is identical to a serial run's whatever the thread count. Under mpirun

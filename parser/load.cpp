@@ -12,6 +12,12 @@
 //  3. resolve: names that may refer forward (through=, couple, records,
 //     reports, expects, frequency input) are looked up, with did-you-mean
 //     hints; node warnings are issued.
+// Pass 1 fills a ParsedSource::Data (files, statements, syntax trees, blocks
+// and pass 1's diagnostics) that passes 2 and 3 only read: a Loader for an
+// elaboration keeps everything it makes, the --set and --record texts and
+// their trees included, in its own members, so one parse can be elaborated
+// many times and from several threads at once (sweep points); load_file and
+// load_text are parse + elaborate, the one code path.
 // Internally every name table is a hash map, so a 100,000-element file loads
 // in linear time. What is not done here: running anything (mna, solver), or
 // checking v0/i0 against the network (that needs the operating point).
@@ -329,22 +335,66 @@ struct PendingCouple {
   std::string prefix;
 };
 
+// A diagnostic with its place in file order (statement sequence, then offset).
+struct Keyed {
+  long long key;
+  Diagnostic diagnostic;
+};
+
+}  // namespace
+
+// Pass 1's product (load.hpp): everything the reading of the files made, shared read-only
+// by the elaborations. The deques keep addresses stable: syntax trees point into the files'
+// `code`, statements into the trees, `statement_order` and `blocks` into the deques.
+struct ParsedSource::Data {
+  std::string file_name;
+  // load_file could not read the file (or it is a directory): `failure` is the whole result.
+  bool unreadable = false;
+  Diagnostics failure;
+  std::deque<SourceFile> files;  // the top file first, then its includes in reading order
+  std::map<const SourceFile*, std::vector<std::pair<std::size_t, int>>> statement_order;
+  std::deque<Stmt> stmts;
+  std::vector<const Stmt*> top;  // top-level statements, in reading order
+  std::deque<BlockDef> block_defs;
+  std::unordered_map<std::string, const BlockDef*> blocks;
+  // Pass 1's diagnostics, unsorted (elaborate sorts them with its own), and their ids
+  // for the once-per-place rule of Loader::report.
+  std::vector<Keyed> diagnostics;
+  std::unordered_set<std::string> seen;
+  int errors = 0;
+};
+
+ParsedSource::ParsedSource(std::unique_ptr<Data> data) : data_(std::move(data)) {}
+ParsedSource::~ParsedSource() = default;
+const std::string& ParsedSource::file_name() const { return data_->file_name; }
+bool ParsedSource::has_errors() const { return data_->unreadable || data_->errors > 0; }
+
+namespace {
+
+// One reading (pass 1, writing into a ParsedSource::Data) or one elaboration (passes 2 and
+// 3, reading a shared Data and keeping everything it makes, --set and --record texts
+// included, in its own members).
 class Loader {
  public:
-  explicit Loader(const LoadOptions& options) : options_(options) {}
+  // Pass 1 into `parsing` (read()).
+  Loader(const LoadOptions& options, ParsedSource::Data& parsing)
+      : options_(options), pass1_(&parsing), parsed_(&parsing) {}
+  // Passes 2 and 3 on a finished pass 1 (elaborate()); `parsed` is only read.
+  Loader(const LoadOptions& options, const ParsedSource::Data& parsed)
+      : options_(options), parsed_(&parsed) {}
 
-  LoadResult load(std::string text, const std::string& file_name, bool from_disk);
+  void read(std::string text, const std::string& file_name);
+  LoadResult elaborate();
   // fmt only needs pass 1 (syntax).
   bool syntax_only(std::string text, const std::string& file_name, Diagnostics& out);
 
  private:
   // --- diagnostics ---
-  struct Keyed {
-    long long key;
-    Diagnostic diagnostic;
-  };
   const SourceFile* file_of(const char* p) const {
-    for (const SourceFile& f : files_) {
+    for (const SourceFile& f : parsed_->files) {
+      if (f.contains(p)) return &f;
+    }
+    for (const SourceFile& f : own_files_) {
       if (f.contains(p)) return &f;
     }
     return nullptr;
@@ -352,9 +402,9 @@ class Loader {
   long long order_key(const char* p) const {
     const SourceFile* f = file_of(p);
     if (!f || f->command_line) return std::numeric_limits<long long>::max() / 2;
-    auto it = statement_order_.find(f);
+    auto it = parsed_->statement_order.find(f);
     long long seq = 0;
-    if (it != statement_order_.end()) {
+    if (it != parsed_->statement_order.end()) {
       const auto& starts = it->second;  // (offset, seq), offsets increasing
       std::size_t off = f->offset(p);
       auto pos = std::upper_bound(starts.begin(), starts.end(),
@@ -373,6 +423,7 @@ class Loader {
     // Block bodies are elaborated once per instance: report each problem once.
     std::string id = d.where.file + ':' + std::to_string(d.where.line) + ':' +
                      std::to_string(d.where.column) + ':' + d.message;
+    if (parsed_ != pass1_ && parsed_->seen.count(id)) return;
     if (!seen_.insert(id).second) return;
     if (severity == Severity::Error) ++errors_;
     diagnostics_.push_back({order_key(first), std::move(d)});
@@ -476,12 +527,10 @@ class Loader {
   void node_warnings();
 
   const LoadOptions& options_;
-  std::deque<SourceFile> files_;
-  std::map<const SourceFile*, std::vector<std::pair<std::size_t, int>>> statement_order_;
-  std::deque<Stmt> stmts_;
-  std::vector<const Stmt*> top_;
-  std::deque<BlockDef> block_defs_;
-  std::unordered_map<std::string, BlockDef*> blocks_;
+  ParsedSource::Data* pass1_ = nullptr;      // pass 1 only: what read() fills
+  const ParsedSource::Data* parsed_ = nullptr;  // the files, statements and blocks
+  std::deque<SourceFile> own_files_;  // --set and --record texts of this elaboration
+  std::deque<Stmt> own_stmts_;        // their parsed values (point into own_files_)
   BlockDef* open_block_ = nullptr;
   const SourceFile* open_block_file_ = nullptr;
   int seq_ = 0;
@@ -528,8 +577,10 @@ bool is_sweep_list(const ast::Operand& op) {
 // --- Pass 1 -----------------------------------------------------------------------
 
 SourceFile& Loader::add_file(std::string path, std::string text, bool command_line) {
-  files_.emplace_back();
-  SourceFile& f = files_.back();
+  // Files of the circuit belong to pass 1; command-line values to this elaboration.
+  std::deque<SourceFile>& files = command_line ? own_files_ : pass1_->files;
+  files.emplace_back();
+  SourceFile& f = files.back();
   f.path = std::move(path);
   f.directory = command_line ? "" : fs::path(f.path).parent_path().string();
   f.text = std::move(text);
@@ -600,7 +651,7 @@ void Loader::read_file(SourceFile& file, std::vector<std::string>& include_stack
   }
   std::vector<SplitProblem> problems;
   std::vector<RawStatement> raws = split_statements(file, problems);
-  auto& order = statement_order_[&file];
+  auto& order = pass1_->statement_order[&file];
   std::size_t problem = 0;
   for (const RawStatement& raw : raws) {
     order.emplace_back(file.offset(raw.first), seq_);
@@ -629,8 +680,8 @@ void Loader::close_open_block(const SourceFile& file) {
 
 void Loader::read_statement(SourceFile& file, const RawStatement& raw,
                             std::vector<std::string>& include_stack) {
-  stmts_.emplace_back();
-  Stmt& stmt = stmts_.back();
+  pass1_->stmts.emplace_back();
+  Stmt& stmt = pass1_->stmts.back();
   stmt.file = &file;
   stmt.first = raw.first;
   stmt.last = raw.last;
@@ -638,7 +689,7 @@ void Loader::read_statement(SourceFile& file, const RawStatement& raw,
   grammar::SyntaxError e;
   if (!grammar::parse_statement(raw.first, raw.last, stmt.ast, e)) {
     syntax_error(file, raw, e);
-    stmts_.pop_back();
+    pass1_->stmts.pop_back();
     return;
   }
   const ast::Command* cmd = boost::get<ast::Command>(&stmt.ast.get());
@@ -694,8 +745,8 @@ void Loader::read_statement(SourceFile& file, const RawStatement& raw,
             "close the first block with 'end' before starting another");
       return;
     }
-    block_defs_.emplace_back();
-    BlockDef& def = block_defs_.back();
+    pass1_->block_defs.emplace_back();
+    BlockDef& def = pass1_->block_defs.back();
     def.header = &stmt;
     std::vector<const ast::Operand*> positional;
     for (const ast::Item& it : cmd->items) {
@@ -729,11 +780,11 @@ void Loader::read_statement(SourceFile& file, const RawStatement& raw,
     open_block_ = &def;  // keep collecting the body even if the header is wrong
     open_block_file_ = &file;
     if (ok) {
-      if (blocks_.count(def.name)) {
+      if (pass1_->blocks.count(def.name)) {
         error(*name, "block '" + def.name + "' is defined twice",
-              "first defined at line " + std::to_string(where(*blocks_[def.name]->header).line));
+              "first defined at line " + std::to_string(where(*pass1_->blocks[def.name]->header).line));
       } else {
-        blocks_[def.name] = &def;
+        pass1_->blocks[def.name] = &def;
       }
     }
     return;
@@ -773,7 +824,7 @@ void Loader::read_statement(SourceFile& file, const RawStatement& raw,
     }
     open_block_->body.push_back(&stmt);
   } else {
-    top_.push_back(&stmt);
+    pass1_->top.push_back(&stmt);
   }
 }
 
@@ -2197,17 +2248,17 @@ void Loader::elaborate_use(const Stmt& stmt, const ast::Command& cmd, Context& c
           "expected: use BLOCK INSTANCE (node, ...) [param=value ...]", hint);
     return;
   }
-  auto found = blocks_.find(block->text);
-  if (found == blocks_.end()) {
+  auto found = parsed_->blocks.find(block->text);
+  if (found == parsed_->blocks.end()) {
     std::vector<std::string> names;
-    for (const auto& [k, v] : blocks_) names.push_back(k);
+    for (const auto& [k, v] : parsed_->blocks) names.push_back(k);
     std::string near = suggest(block->text, names);
     error(*block, "unknown block '" + block->text + "'",
           near.empty() ? (names.empty() ? "define it with block ... end" : "blocks: " + join(names, ", "))
                        : "did you mean '" + near + "'?");
     return;
   }
-  BlockDef& def = *found->second;
+  const BlockDef& def = *found->second;
   if (std::find(ctx.block_stack.begin(), ctx.block_stack.end(), def.name) != ctx.block_stack.end()) {
     std::vector<std::string> chain = ctx.block_stack;
     chain.push_back(def.name);
@@ -3196,8 +3247,8 @@ void Loader::apply_overrides() {
       continue;
     }
     // Keep the parsed value alive with the loader: the tree points into f.
-    stmts_.emplace_back();
-    Stmt& holder = stmts_.back();
+    own_stmts_.emplace_back();
+    Stmt& holder = own_stmts_.back();
     holder.file = &f;
     holder.first = first;
     holder.last = last;
@@ -3265,8 +3316,8 @@ void Loader::apply_record_option() {
   circuit_.records.clear();
   for (const std::string& text : options_.records) {
     SourceFile& f = add_file("--record", text, true);
-    stmts_.emplace_back();
-    Stmt& holder = stmts_.back();
+    own_stmts_.emplace_back();
+    Stmt& holder = own_stmts_.back();
     holder.file = &f;
     ast::RecordLine line;
     line.entries.emplace_back();
@@ -3302,11 +3353,34 @@ bool Loader::syntax_only(std::string text, const std::string& file_name, Diagnos
   return errors_ == 0;
 }
 
-LoadResult Loader::load(std::string text, const std::string& file_name, bool from_disk) {
-  (void)from_disk;
-  global_.prefix = "";
+void Loader::read(std::string text, const std::string& file_name) {
+  pass1_->file_name = file_name;
   SourceFile& top = add_file(file_name, std::move(text));
-  circuit_.file = file_name;
+  std::vector<std::string> include_stack;
+  std::error_code ec;
+  fs::path canonical = fs::weakly_canonical(fs::path(file_name), ec);
+  include_stack.push_back(ec ? file_name : canonical.string());
+  read_file(top, include_stack);
+  pass1_->diagnostics = std::move(diagnostics_);
+  pass1_->seen = std::move(seen_);
+  pass1_->errors = errors_;
+  diagnostics_.clear();
+  seen_.clear();
+  errors_ = 0;
+}
+
+LoadResult Loader::elaborate() {
+  if (parsed_->unreadable) {
+    LoadResult r;
+    r.diagnostics = parsed_->failure;
+    return r;
+  }
+  // Pass 1's diagnostics first: with the stable sort below, the order is a single load's.
+  diagnostics_ = parsed_->diagnostics;
+  errors_ = parsed_->errors;
+  const std::vector<const Stmt*>& top = parsed_->top;
+  global_.prefix = "";
+  circuit_.file = parsed_->file_name;
   {
     Node g;
     g.name = "gnd";
@@ -3315,18 +3389,13 @@ LoadResult Loader::load(std::string text, const std::string& file_name, bool fro
     node_tokens_.push_back(nullptr);
     node_index_.emplace("gnd", kGround);
   }
-  std::vector<std::string> include_stack;
-  std::error_code ec;
-  fs::path canonical = fs::weakly_canonical(fs::path(file_name), ec);
-  include_stack.push_back(ec ? file_name : canonical.string());
-  read_file(top, include_stack);
 
   // Parameters first (any order), then sweeps may define missing ones, then
   // --set overrides replace definitions.
-  for (const Stmt* s : top_) {
+  for (const Stmt* s : top) {
     if (auto* line = boost::get<ast::ParameterLine>(&s->ast.get())) register_parameter(*s, *line, global_, "");
   }
-  for (const Stmt* s : top_) {
+  for (const Stmt* s : top) {
     if (auto* line = boost::get<ast::SweepLine>(&s->ast.get())) {
       if (!global_.find(line->name.text) && valid_parameter_name(line->name)) {
         param_store_.emplace_back();
@@ -3345,7 +3414,7 @@ LoadResult Loader::load(std::string text, const std::string& file_name, bool fro
 
   Context ctx;
   ctx.scope = &global_;
-  for (const Stmt* s : top_) elaborate_statement(*s, ctx, true);
+  for (const Stmt* s : top) elaborate_statement(*s, ctx, true);
   elaborate_command_line_sweeps();
   // Block bodies are checked even when no `use` instantiates them? Only
   // syntax: their names depend on the instance.
@@ -3353,7 +3422,7 @@ LoadResult Loader::load(std::string text, const std::string& file_name, bool fro
   resolve_through();
   resolve_couples();
   resolve_frequency_input();
-  for (const Stmt* s : top_) {
+  for (const Stmt* s : top) {
     const auto& v = s->ast.get();
     if (auto* r = boost::get<ast::RecordLine>(&v)) resolve_records(*s, *r);
     else if (auto* r = boost::get<ast::ReportLine>(&v)) resolve_report(*s, *r);
@@ -3391,43 +3460,64 @@ LoadResult Loader::load(std::string text, const std::string& file_name, bool fro
 
 }  // namespace
 
-LoadResult load_file(const std::string& path, const LoadOptions& options) {
+std::shared_ptr<const ParsedSource> parse_file(const std::string& path) {
+  auto data = std::make_unique<ParsedSource::Data>();
+  data->file_name = path;
   std::error_code ec;
   if (fs::is_directory(path, ec)) {
-    LoadResult r;
     Diagnostic d;
     d.where.file = path;
     d.message = "'" + path + "' is a directory, not a circuit file";
     d.hint = "name a file, e.g. " + (fs::path(path) / "circuit.rlc").string();
-    r.diagnostics.push_back(d);
-    return r;
+    data->unreadable = true;
+    data->failure.push_back(d);
+    return std::make_shared<const ParsedSource>(std::move(data));
   }
   std::ifstream in(path, std::ios::binary);
   if (!in) {
-    LoadResult r;
     Diagnostic d;
     d.where.file = path;
     d.message = "cannot read file '" + path + "'";
     d.hint = "check the path; circuit files end in .rlc";
-    r.diagnostics.push_back(d);
-    return r;
+    data->unreadable = true;
+    data->failure.push_back(d);
+    return std::make_shared<const ParsedSource>(std::move(data));
   }
   std::ostringstream ss;
   ss << in.rdbuf();
-  Loader loader(options);
-  return loader.load(ss.str(), path, true);
+  const LoadOptions none;
+  Loader reader(none, *data);
+  reader.read(ss.str(), path);
+  return std::make_shared<const ParsedSource>(std::move(data));
+}
+
+std::shared_ptr<const ParsedSource> parse_text(std::string_view text, const std::string& file_name) {
+  auto data = std::make_unique<ParsedSource::Data>();
+  const LoadOptions none;
+  Loader reader(none, *data);
+  reader.read(std::string(text), file_name);
+  return std::make_shared<const ParsedSource>(std::move(data));
+}
+
+LoadResult elaborate(const ParsedSource& source, const LoadOptions& options) {
+  Loader loader(options, source.data());
+  return loader.elaborate();
+}
+
+LoadResult load_file(const std::string& path, const LoadOptions& options) {
+  return elaborate(*parse_file(path), options);
 }
 
 LoadResult load_text(std::string_view text, const std::string& file_name,
                      const LoadOptions& options) {
-  Loader loader(options);
-  return loader.load(std::string(text), file_name, false);
+  return elaborate(*parse_text(text, file_name), options);
 }
 
 namespace detail {
 bool check_syntax(std::string_view text, const std::string& file_name, Diagnostics& diagnostics) {
   LoadOptions options;
-  Loader loader(options);
+  ParsedSource::Data data;
+  Loader loader(options, data);
   return loader.syntax_only(std::string(text), file_name, diagnostics);
 }
 }  // namespace detail
