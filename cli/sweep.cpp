@@ -35,6 +35,7 @@
 #include "cli/histogram_plot.hpp"
 #include "cli/progress.hpp"
 #include "cli/sweep_job.hpp"
+#include "mna/descriptor.hpp"
 #include "parser/units.hpp"
 #include "solver/draws.hpp"
 #include "solver/transient.hpp"
@@ -127,6 +128,12 @@ struct Point {
   std::string label;           // "Rsn=47 Csn=1e-09"
   std::optional<Circuit> circuit;
   Diagnostics diagnostics;
+  // With trials: the point's MNA structure, analysed once for all its trials (they scale
+  // values only), and the diagnostics of that analysis, which each trial reports as its
+  // own engine run would have. Empty when the analysis failed: each trial then analyses
+  // (and fails) itself.
+  std::shared_ptr<const mna::Network> structure;
+  Diagnostics structure_diagnostics;
 };
 
 struct TrialsPlan {
@@ -340,6 +347,13 @@ SweepOutcome run_sweep(const SweepContext& ctx) {
     return refuse(kExitBadInput, errors, "sweep point " + p.label + " has errors");
   }
 
+  if (trials.active)
+    for (Point& p : points) {
+      std::optional<mna::Network> net = mna::Network::analyse(*p.circuit, options.strict, p.structure_diagnostics);
+      if (net) p.structure = std::make_shared<const mna::Network>(std::move(*net));
+      else p.structure_diagnostics.clear();
+    }
+
   // --- Every (point, trial) ------------------------------------------------------------------
   std::vector<JobResult> results(job_count);
   const std::size_t record_count = base.records.size();
@@ -385,6 +399,10 @@ SweepOutcome run_sweep(const SweepContext& ctx) {
         engine.dense_output = true;
         engine.trajectory_signals = plan.extra_signals();
         engine.formula_tolerance = ctx.formula_tolerance;
+        if (trials.active && point.structure) {
+          engine.structure = point.structure;
+          r.diagnostics = point.structure_diagnostics;
+        }
         if (keep_signals) r.samples.resize(record_count);
         bool finite = true;
         const solver::SampleSink sink = [&](double t, const double* values, std::size_t count) {
@@ -398,8 +416,10 @@ SweepOutcome run_sweep(const SweepContext& ctx) {
         for (Diagnostic& d : engine_diagnostics) r.diagnostics.push_back(std::move(d));
         if (summary.status == solver::Status::BadInput) r.exit_code = kExitBadInput;
         else if (summary.status == solver::Status::Numerical || !finite) r.exit_code = kExitNumerical;
+        // An error without a status (none expected) still fails the run; a bad-input run
+        // keeps exit 2, as a single run does (CLI.md).
         for (const Diagnostic& d : r.diagnostics)
-          if (d.severity == Severity::Error) r.exit_code = std::max(r.exit_code, static_cast<int>(kExitNumerical));
+          if (d.severity == Severity::Error && r.exit_code == kExitOk) r.exit_code = kExitNumerical;
         if (!finite)
           r.diagnostics.push_back(command_line_diagnostic(
               Severity::Error, "the engine produced a value that is not a finite number (NaN or infinity)",

@@ -240,7 +240,8 @@ class Engine {
   Diagnostics& diags_;
   TransientSummary sum_;
 
-  std::optional<mna::Network> net_;
+  std::optional<mna::Network> own_net_;  // analysed here, when no kept structure is given
+  const mna::Network* net_ = nullptr;
   DifferentialStructure topology_;
   StatePartition partition_;
   std::vector<int> cap_elements_;  // element index per capacitor branch
@@ -1350,7 +1351,12 @@ TransientSummary Engine::run() {
     sum_.status = Status::BadInput;
     return finish();
   }
-  net_ = mna::Network::analyse(c_, opt_.strict, diags_);
+  if (opt_.structure) {
+    net_ = opt_.structure.get();
+  } else {
+    own_net_ = mna::Network::analyse(c_, opt_.strict, diags_);
+    if (own_net_) net_ = &*own_net_;
+  }
   if (!net_) {
     sum_.status = Status::BadInput;
     return finish();

@@ -16,6 +16,10 @@
 #include "parser/diagnostic.hpp"
 #include "solver/trajectory.hpp"
 
+namespace ringdown::mna {
+class Network;
+}
+
 namespace ringdown::solver {
 
 struct TransientOptions {
@@ -35,6 +39,12 @@ struct TransientOptions {
   double formula_tolerance = 1e-9;
   // Called now and then with the fraction done (0..1); may be empty.
   std::function<void(double fraction)> progress;
+  // The MNA structure (topology checks, unknown layout) of a circuit with the same structure
+  // as this one, analysed once: the engine then only stamps this circuit's values into it.
+  // The sweep runner hands each trial its point's structure (a trial scales values only).
+  // Empty: the engine analyses the circuit itself. The topology diagnostics are those of the
+  // analysis, so the caller reports them (the engine adds none from a kept structure).
+  std::shared_ptr<const mna::Network> structure;
 };
 
 // One output sample: t and the value of every requested signal, in order.

@@ -206,6 +206,22 @@ TEST_F(SweepCli, TrialsAreReproducibleFromTheirSeed) {
   EXPECT_NE(a.out.find("yield  25 of 25"), std::string::npos) << a.out;
 }
 
+TEST_F(SweepCli, TrialsReportTopologyWarningsOfEveryRunAndStrictRefusesThem) {
+  // The trials share their point's MNA structure (analysed once): its topology warning is
+  // still each run's (counted in all 20), and under --strict it is a bad-input error, exit 2
+  // as for a single run (CLI.md), with no output file written.
+  const std::string f = write("f.rlc", toleranced_rc("trials runs=20 seed=5",
+                                                      "resistor Rf fa fb 1k\ncapacitor Cf fa fb 1nF\n"));
+  ProcessResult a = run_ringdown({"run", f, "--no-progress", "--csv", path("f.csv")});
+  ASSERT_EQ(a.exit_code, kOk) << a.err;
+  EXPECT_NE(a.err.find("have no DC path to gnd"), std::string::npos) << a.err;
+  EXPECT_NE(a.err.find("in 20 runs"), std::string::npos) << a.err;
+  EXPECT_EQ(parse_csv(read(path("f.csv"))).size(), 21U);
+  ProcessResult s = run_ringdown({"run", f, "--no-progress", "--strict", "--csv", path("s.csv")});
+  EXPECT_EQ(s.exit_code, kBadInput) << s.err;
+  EXPECT_FALSE(fs::exists(path("s.csv")));
+}
+
 TEST_F(SweepCli, CornersRunEveryCombinationOnce) {
   const std::string f = write("c.rlc", toleranced_rc("trials runs=100 spread=corners"));
   const ProcessResult r = run_ringdown({"run", f, "--no-progress", "--csv", path("c.csv")});
