@@ -3461,34 +3461,27 @@ LoadResult Loader::elaborate() {
 }  // namespace
 
 std::shared_ptr<const ParsedSource> parse_file(const std::string& path) {
-  auto data = std::make_unique<ParsedSource::Data>();
-  data->file_name = path;
+  // A file that cannot be read: the diagnostic is the whole result of every elaboration.
+  const auto unreadable = [&path](std::string message, std::string hint) {
+    auto data = std::make_unique<ParsedSource::Data>();
+    data->file_name = path;
+    data->unreadable = true;
+    Diagnostic d;
+    d.where.file = path;
+    d.message = std::move(message);
+    d.hint = std::move(hint);
+    data->failure.push_back(std::move(d));
+    return std::make_shared<const ParsedSource>(std::move(data));
+  };
   std::error_code ec;
-  if (fs::is_directory(path, ec)) {
-    Diagnostic d;
-    d.where.file = path;
-    d.message = "'" + path + "' is a directory, not a circuit file";
-    d.hint = "name a file, e.g. " + (fs::path(path) / "circuit.rlc").string();
-    data->unreadable = true;
-    data->failure.push_back(d);
-    return std::make_shared<const ParsedSource>(std::move(data));
-  }
+  if (fs::is_directory(path, ec))
+    return unreadable("'" + path + "' is a directory, not a circuit file",
+                      "name a file, e.g. " + (fs::path(path) / "circuit.rlc").string());
   std::ifstream in(path, std::ios::binary);
-  if (!in) {
-    Diagnostic d;
-    d.where.file = path;
-    d.message = "cannot read file '" + path + "'";
-    d.hint = "check the path; circuit files end in .rlc";
-    data->unreadable = true;
-    data->failure.push_back(d);
-    return std::make_shared<const ParsedSource>(std::move(data));
-  }
+  if (!in) return unreadable("cannot read file '" + path + "'", "check the path; circuit files end in .rlc");
   std::ostringstream ss;
   ss << in.rdbuf();
-  const LoadOptions none;
-  Loader reader(none, *data);
-  reader.read(ss.str(), path);
-  return std::make_shared<const ParsedSource>(std::move(data));
+  return parse_text(ss.str(), path);
 }
 
 std::shared_ptr<const ParsedSource> parse_text(std::string_view text, const std::string& file_name) {

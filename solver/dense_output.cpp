@@ -121,10 +121,6 @@ class DenseTrajectory final : public Trajectory {
   }
   double value(std::size_t k, double t) const override { return evaluate(k, t, false, false); }
   double derivative(std::size_t k, double t) const override { return evaluate(k, t, false, true); }
-  void values(const std::size_t* signals, std::size_t count, double t, double* out) const override {
-    std::lock_guard<std::mutex> lock(mutex_);
-    for (std::size_t i = 0; i < count; ++i) out[i] = evaluate_locked(signals[i], t, false, false);
-  }
   // One pass over the checkpoints. Consecutive checkpoints of one segment lie back to back
   // in memory, so the bases the signals load come as one product per run of them,
   // (rows of O) x [X_i X_i+1 ...], instead of a dot product per base and sample; the
@@ -326,7 +322,7 @@ class DenseTrajectory final : public Trajectory {
     // that would count as a recurring length and buy output rows nobody reuses.
     const long long length = std::llround(h / p_.instant);
     for (const Recent& r : recent_)
-      if (r.checkpoint == i && r.length == length && r.state.size() == static_cast<Eigen::Index>(n)) {
+      if (r.checkpoint == i && r.length == length) {
         x_ptr_ = r.state.data();
         return;
       }

@@ -37,12 +37,6 @@ class Trajectory {
   virtual double value(std::size_t signal, double t) const = 0;
   virtual double derivative(std::size_t signal, double t) const = 0;
 
-  // value(signals[i], t) for i < count into out[i]: several signals at one instant (the
-  // samples of the safety screen). An engine that locates t once may override it.
-  virtual void values(const std::size_t* signals, std::size_t count, double t, double* out) const {
-    for (std::size_t i = 0; i < count; ++i) out[i] = value(signals[i], t);
-  }
-
   // Every signals[i] (i < count) at every output sample (sample_times(), S of them): the
   // value into values[i * S + k] and, when `derivatives` is not null, the derivative into
   // derivatives[i * S + k]. The same numbers value() and derivative() give at those instants
